@@ -1,0 +1,124 @@
+"""The invented demo scenario ("Heron" programme) and the pipeline run over it.
+
+``saltplan demo --out reports`` runs every step on the demo compounds: plan, report,
+screen design, batch triage of the whole programme and, for the lead compound, the
+decision record from an INVENTED screen-results file. Everything here is invented data
+for demonstration; none of it is a measurement.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .._data import package_yaml
+
+#: the compound whose screen gets invented results and a decision record
+LEAD = "HRN-101"
+
+
+@dataclass(frozen=True)
+class DemoCompound:
+    code: str
+    role: str
+    smiles: str
+    dose_mg: float
+    api_budget_mg: float
+    route: str = "oral"
+    note: str = ""
+    measured_pka: dict[str, float] = field(default_factory=dict)
+
+
+def load_programme() -> list[DemoCompound]:
+    data = package_yaml("demo", "programme.yaml")
+    return [DemoCompound(**row) for row in data["compounds"]]
+
+
+def programme_name() -> str:
+    return package_yaml("demo", "programme.yaml")["programme"]
+
+
+def run_demo(out_dir: str | Path) -> dict[str, Any]:
+    """Run the whole pipeline over the demo programme; return a summary of what was written."""
+    from ..plan import plan_salts
+
+    out = Path(out_dir)
+    written: list[str] = []
+    summary: dict[str, Any] = {"programme": programme_name(), "compounds": []}
+    designs = {}
+    for c in load_programme():
+        plan = plan_salts(c.smiles, name=c.code, dose_mg=c.dose_mg, route=c.route,
+                          measured=dict(c.measured_pka) or None)
+        folder = out / c.code
+        written += [str(p) for p in _write_plan(plan, folder)]
+        entry = {"code": c.code, "role": c.role, "verdict": plan.verdict["code"],
+                 "top": [f"{k['counterion']} {k['stoichiometry']}" for k in plan.to_dict()["candidates"][:3]
+                         if k["feasible"]]}
+        design = _design(plan, c)
+        if design is not None:
+            designs[c.code] = design
+            written += [str(p) for p in _write_screen(design, folder / "screen")]
+            written += [str(p) for p in _write_plan(plan, folder, screen=design)]
+            entry["wells"] = len(design.wells)
+        summary["compounds"].append(entry)
+
+    written += _batch(out)
+    if LEAD in designs:
+        written += _select(designs[LEAD], out / LEAD)
+    summary["written"] = sorted(set(written))
+    return summary
+
+
+def _write_plan(plan, folder: Path, screen=None) -> list[Path]:
+    try:
+        from ..reports import write_plan_report
+    except ImportError:  # reports not available: JSON only
+        from .._io import write_text_atomic
+        import json
+
+        return [write_text_atomic(folder / "plan.json", json.dumps(plan.to_dict(), indent=2) + "\n")]
+    return list(write_plan_report(plan, folder, screen=screen))
+
+
+def _design(plan, c: DemoCompound):
+    if plan.verdict["code"] != "salt_candidates":
+        return None
+    try:
+        from ..screen import design_screen
+    except ImportError:
+        return None
+    return design_screen(plan, api_budget_mg=c.api_budget_mg)
+
+
+def _write_screen(design, folder: Path) -> list[Path]:
+    from ..screen import write_screen
+
+    return list(write_screen(design, folder))
+
+
+def _batch(out: Path) -> list[str]:
+    try:
+        from ..batch import run_batch_files
+    except ImportError:
+        return []
+    import pandas as pd
+
+    rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
+            for c in load_programme()]
+    frame = pd.DataFrame(rows)
+    return [str(p) for p in run_batch_files(frame, out / "portfolio.csv",
+                                            summary=out / "portfolio-summary.html")]
+
+
+def _select(design, folder: Path) -> list[str]:
+    try:
+        from ..demo_results import make_demo_results
+        from ..select import evaluate_results
+        from ..select_report import write_decision_record
+    except ImportError:
+        return []
+    from .._io import write_text_atomic
+
+    results_path = write_text_atomic(folder / "screen" / "results-invented.csv", make_demo_results(design))
+    selection = evaluate_results(design, results_path)
+    return [str(results_path)] + [str(p) for p in write_decision_record(selection, folder / "decision")]

@@ -1,0 +1,71 @@
+"""The built wheel carries every data file: install it into a fresh venv and run the demo.
+
+A data file missing from the wheel (parameter table, template, counterion library) makes
+this test fail, although the editable checkout would work.
+"""
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import venv
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+
+pytestmark = pytest.mark.slow
+
+
+def _run(cmd, cwd, env=None):
+    return subprocess.run(cmd, cwd=cwd, env=env, capture_output=True, text=True, timeout=900)
+
+
+@pytest.fixture(scope="module")
+def wheel_venv(tmp_path_factory):
+    tmp = tmp_path_factory.mktemp("wheel")
+    built = _run([sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(tmp), str(ROOT)], cwd=tmp)
+    assert built.returncode == 0, built.stderr[-2000:]
+    wheel = next(tmp.glob("saltplan-*.whl"))
+    env_dir = tmp / "venv"
+    # dependencies come from this interpreter's site-packages; the package itself only from the wheel
+    venv.EnvBuilder(with_pip=True, system_site_packages=True).create(env_dir)
+    py = env_dir / "bin" / "python"
+    inst = _run([str(py), "-m", "pip", "install", "-q", "--no-deps", "--no-index", str(wheel)], cwd=tmp)
+    assert inst.returncode == 0, inst.stderr[-2000:]
+    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH",)}
+    env["PYTHONNOUSERSITE"] = "1"
+    # hide the editable checkout: run from a folder that is not the repo, and drop its .pth path
+    env["PYTHONSAFEPATH"] = "1"
+    return py, env_dir, env, tmp
+
+
+def test_wheel_holds_the_package_data(wheel_venv):
+    py, env_dir, env, tmp = wheel_venv
+    code = (
+        "import sys, json, saltplan, saltplan._data as d;"
+        "sys.path[:] = [p for p in sys.path if not p.startswith(%r)];"
+        "print(json.dumps({'pkg': saltplan.__file__, 'ions': str(d.counterion_dir())}))" % str(ROOT)
+    )
+    out = _run([str(py), "-c", code], cwd=tmp, env=env)
+    assert out.returncode == 0, out.stderr[-2000:]
+    info = json.loads(out.stdout)
+    assert str(env_dir) in info["pkg"], info
+    assert str(env_dir) in info["ions"], info
+    assert list(Path(info["ions"]).glob("*.yaml")), "counterion YAML files missing from the wheel"
+
+
+def test_wheel_smoke_commands(wheel_venv):
+    py, env_dir, env, tmp = wheel_venv
+    exe = env_dir / "bin" / "saltplan"
+    out = _run([str(exe), "--version"], cwd=tmp, env=env)
+    assert out.returncode == 0 and "saltplan" in out.stdout
+    out = _run([str(exe), "parent", "CCN(CC)CC.Cl", "--json"], cwd=tmp, env=env)
+    assert out.returncode == 0, out.stderr
+    assert json.loads(out.stdout)["supplied_as"] == "hydrochloride"
+    demo_out = tmp / "demo-out"
+    out = _run([str(exe), "demo", "--out", str(demo_out)], cwd=tmp, env=env)
+    assert out.returncode == 0, out.stderr[-3000:]
+    assert any(demo_out.rglob("report.html")), "demo wrote no HTML report from the wheel"

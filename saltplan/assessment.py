@@ -1,0 +1,570 @@
+"""Will a salt form? The ΔpKa rule, proton-transfer probability and stoichiometries.
+
+For every salt-forming site of the API and every counterion of the opposite role this
+module computes the aqueous ΔpKa = pKa(BH⁺) − pKa(HA), places it on the rule-of-thumb
+scale, gives the proton-transfer probability from crystal-structure statistics, and spells
+out the stoichiometries worth making, each with its formula, salt molecular weight and
+drug content.
+
+References
+----------
+1. P. H. Stahl, C. G. Wermuth (eds.), *Handbook of Pharmaceutical Salts: Properties,
+   Selection, and Use*, 2nd ed., Wiley-VCH, 2011 (ΔpKa ≥ 2–3 rule of thumb; common practice).
+2. A. J. Cruz-Cabeza, *CrystEngComm* 2012, 14, 6362–6365 (ΔpKa < −1: co-crystals;
+   ΔpKa > 4: salts; P ≈ 0.17·ΔpKa + 0.28 in between; relation from memory).
+"""
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass, field
+from typing import Any, Iterable, Sequence
+
+from .errors import ParameterError
+
+CATEGORIES = ("salt_expected", "likely", "uncertain", "unlikely")
+THRESHOLD_SOURCE = ("rule of thumb ΔpKa ≥ 2–3 (common practice; Stahl & Wermuth 2011); "
+                    "ΔpKa < −1 almost only co-crystals (Cruz-Cabeza 2012)")
+PROBABILITY_SOURCE = ("P = clip(0.17·ΔpKa + 0.28, 0, 1), crystal-structure statistics "
+                      "(Cruz-Cabeza, CrystEngComm 2012, 14, 6362; relation from memory)")
+MASS_SOURCE = "RDKit average atomic weights (IUPAC), from the combined salt SMILES"
+
+#: metals that appear as cations in pharmaceutical salts (charge when the SMILES has none)
+_METAL_CHARGE = {"Li": 1, "Na": 1, "K": 1, "Rb": 1, "Cs": 1, "Mg": 2, "Ca": 2, "Sr": 2,
+                 "Ba": 2, "Zn": 2, "Al": 3, "Fe": 2, "Cu": 2, "Bi": 3}
+
+
+# --------------------------------------------------------------------------- the rule
+@dataclass(frozen=True)
+class Thresholds:
+    """ΔpKa limits of the categories [pKa units].
+
+    ``ΔpKa ≥ salt_expected`` → "salt_expected"; ``≥ likely`` → "likely";
+    ``≥ uncertain`` → "uncertain" (mixed salt/co-crystal zone); below → "unlikely".
+    Defaults 3 / 2 / −1: common practice (Stahl & Wermuth 2011) and Cruz-Cabeza 2012.
+    """
+
+    salt_expected: float = 3.0
+    likely: float = 2.0
+    uncertain: float = -1.0
+
+    def __post_init__(self):
+        values = (self.salt_expected, self.likely, self.uncertain)
+        if not all(isinstance(v, (int, float)) and math.isfinite(v) for v in values):
+            raise ParameterError("ΔpKa thresholds must be finite numbers", field="thresholds")
+        if not self.salt_expected >= self.likely >= self.uncertain:
+            raise ParameterError(
+                f"ΔpKa thresholds must satisfy salt_expected ≥ likely ≥ uncertain, got "
+                f"{self.salt_expected}, {self.likely}, {self.uncertain}", field="thresholds")
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"salt_expected": self.salt_expected, "likely": self.likely,
+                "uncertain": self.uncertain, "source": THRESHOLD_SOURCE}
+
+
+DEFAULT_THRESHOLDS = Thresholds()
+
+
+def delta_pka(base_pka: float, acid_pka: float) -> float:
+    """ΔpKa = pKa(BH⁺) − pKa(HA) [pKa units], both aqueous.
+
+    >>> round(delta_pka(10.64, -6.0), 2)   # a trialkylammonium with HCl (pKa about −6)
+    16.64
+    """
+    return float(base_pka) - float(acid_pka)
+
+
+def categorize(dpka: float, thresholds: Thresholds = DEFAULT_THRESHOLDS) -> str:
+    """Category of a ΔpKa on the rule-of-thumb scale (see :class:`Thresholds`).
+
+    >>> categorize(3.0), categorize(2.5), categorize(0.0), categorize(-1.5)
+    ('salt_expected', 'likely', 'uncertain', 'unlikely')
+    """
+    if dpka >= thresholds.salt_expected:
+        return "salt_expected"
+    if dpka >= thresholds.likely:
+        return "likely"
+    if dpka >= thresholds.uncertain:
+        return "uncertain"
+    return "unlikely"
+
+
+def transfer_probability(dpka: float, slope: float = 0.17, intercept: float = 0.28) -> float:
+    """Probability that the proton is transferred (a salt rather than a co-crystal).
+
+    .. math:: P = \\min(1, \\max(0, 0.17\\,\\Delta pK_a + 0.28))
+
+    Parameters
+    ----------
+    dpka : float
+        Aqueous ΔpKa [pKa units].
+    slope, intercept : float
+        The linear relation of Cruz-Cabeza 2012 (from memory): 17 % per unit, 28 % at 0.
+
+    Returns
+    -------
+    float
+        0 … 1. The 50 % point lies at ΔpKa ≈ 1.3.
+
+    >>> round(transfer_probability(1.3), 3), transfer_probability(5.0)
+    (0.501, 1.0)
+    """
+    return min(1.0, max(0.0, slope * float(dpka) + intercept))
+
+
+# --------------------------------------------------------------------------- result types
+@dataclass(frozen=True)
+class Caveat:
+    """A liability or warning attached to a candidate or to the API.
+
+    ``severity`` is "info", "warning" or "serious"; ``source`` names the rule or reference.
+    """
+
+    code: str
+    severity: str
+    text: str
+    source: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"code": self.code, "severity": self.severity, "text": self.text,
+                "source": self.source}
+
+
+@dataclass(frozen=True)
+class Transfer:
+    """One proton transfer of a salt: an API site and a counterion pKa."""
+
+    api_atom: int
+    api_kind: str                 # "acid" | "base" (the API site)
+    api_pka: float
+    api_pka_provenance: str       # "measured" | "estimated"
+    api_pka_source: str
+    counterion_pka: float
+    counterion_pka_index: int     # index in the counterion's ascending pKa tuple
+    counterion_pka_source: str
+    delta_pka: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "api_atom": self.api_atom,
+            "api_kind": self.api_kind,
+            "api_pka": round(self.api_pka, 2),
+            "api_pka_provenance": self.api_pka_provenance,
+            "api_pka_source": self.api_pka_source,
+            "counterion_pka": round(self.counterion_pka, 2),
+            "counterion_pka_index": self.counterion_pka_index,
+            "counterion_pka_source": self.counterion_pka_source,
+            "delta_pka": round(self.delta_pka, 2),
+        }
+
+
+@dataclass(frozen=True)
+class Composition:
+    """Formula and masses of one salt species (per formula unit)."""
+
+    n_api: int
+    n_counterion: int
+    salt_smiles: str
+    formula: str                  # Hill formula of the whole formula unit (RDKit)
+    formula_display: str          # "(C17H21NO)·HCl"-style: components with multipliers
+    salt_mw: float                # g/mol
+    drug_content: float           # % w/w of free form = n·MW(API)/MW(salt)·100
+    counterion_mass_per_api: float  # g of counterion moiety delivered per mol API
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A counterion × stoichiometry option for the API (see DEVELOPERS.md contract)."""
+
+    counterion: str
+    counterion_name: str
+    stoichiometry: str            # "API:counterion"
+    api_sites: tuple[int, ...]
+    delta_pka: float              # limiting (smallest) ΔpKa
+    delta_pkas: tuple[float, ...]
+    category: str
+    feasible: bool
+    probability: float
+    formula: str
+    salt_mw: float
+    drug_content: float
+    transfers: tuple[Transfer, ...] = ()
+    formula_display: str = ""
+    salt_smiles: str = ""
+    counterion_mass_per_api: float = 0.0
+    tier: int | None = None
+    score: float = 0.0
+    breakdown: dict = field(default_factory=dict, compare=False, hash=False)
+    rank: int = 0
+    caveats: tuple[Caveat, ...] = ()
+    ph_max: float | None = None
+    ph_max_basis: str | None = None
+    reason: str | None = None     # why excluded (infeasible), None when feasible
+
+    @property
+    def sort_key(self):
+        """Deterministic order: score desc, ΔpKa desc, counterion id, stoichiometry."""
+        return (-round(self.score, 9), -round(self.delta_pka, 9), self.counterion,
+                self.stoichiometry)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "rank": self.rank,
+            "counterion": self.counterion,
+            "counterion_name": self.counterion_name,
+            "stoichiometry": self.stoichiometry,
+            "api_sites": list(self.api_sites),
+            "delta_pka": round(self.delta_pka, 2),
+            "delta_pkas": [round(d, 2) for d in self.delta_pkas],
+            "category": self.category,
+            "feasible": self.feasible,
+            "probability": round(self.probability, 3),
+            "transfers": [t.to_dict() for t in self.transfers],
+            "tier": self.tier,
+            "formula": self.formula,
+            "formula_display": self.formula_display,
+            "salt_smiles": self.salt_smiles,
+            "salt_mw": round(self.salt_mw, 2),
+            "drug_content": round(self.drug_content, 2),
+            "mass_source": MASS_SOURCE,
+            "score": round(self.score, 3),
+            "breakdown": {k: round(v, 3) for k, v in self.breakdown.items()},
+            "ph_max": None if self.ph_max is None else round(self.ph_max, 2),
+            "ph_max_basis": self.ph_max_basis,
+            "caveats": [c.to_dict() for c in self.caveats],
+            "reason": self.reason,
+        }
+
+
+def parse_stoichiometry(text: str) -> tuple[int, int]:
+    """"2:1" → (2, 1): API molecules and counterion units per formula unit."""
+    try:
+        left, right = (int(x) for x in str(text).split(":"))
+    except ValueError:
+        raise ParameterError(f"stoichiometry must look like '1:1' or '2:1', got {text!r}") from None
+    if left < 1 or right < 1:
+        raise ParameterError(f"stoichiometry must be positive, got {text!r}")
+    return left, right
+
+
+# --------------------------------------------------------------------------- counterion access
+def counterion_pkas(ion) -> tuple[float, ...]:
+    return tuple(float(p) for p in (getattr(ion, "pka", None) or ()))
+
+
+def salt_pka_index(ion) -> int | None:
+    """Index (in the ascending pKa tuple) of the pKa the ΔpKa rule uses for this counterion.
+
+    Acids: the first (lowest) pKa; bases: the conjugate-acid pKa, i.e. the highest. When the
+    library states ``pka_for_salt`` the matching entry is used.
+    """
+    pkas = counterion_pkas(ion)
+    if not pkas:
+        return None
+    stated = getattr(ion, "pka_for_salt", None)
+    if stated is not None:
+        best = min(range(len(pkas)), key=lambda i: (abs(pkas[i] - float(stated)), i))
+        if abs(pkas[best] - float(stated)) < 1e-6:
+            return best
+    return 0 if ion.role == "acid" else len(pkas) - 1
+
+
+def salt_pka(ion) -> float | None:
+    stated = getattr(ion, "pka_for_salt", None)
+    if stated is not None:
+        return float(stated)
+    i = salt_pka_index(ion)
+    return None if i is None else counterion_pkas(ion)[i]
+
+
+def pka_source(ion, index: int | None) -> str:
+    sources = getattr(ion, "pka_sources", None) or ()
+    if index is not None and 0 <= index < len(sources):
+        return str(sources[index])
+    if len(sources) == 1:
+        return str(sources[0])
+    return f"counterion library entry '{ion.id}'"
+
+
+@functools.lru_cache(maxsize=512)
+def _metal_of(smiles: str) -> tuple[str, int] | None:
+    """(symbol, charge) of the metal cation in a counterion SMILES, or None for organic/inorganic acids."""
+    from rdkit import Chem
+
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        return None
+    for atom in mol.GetAtoms():
+        sym = atom.GetSymbol()
+        if sym in _METAL_CHARGE:
+            charge = atom.GetFormalCharge() or _METAL_CHARGE[sym]
+            return sym, abs(charge)
+    return None
+
+
+def is_metal(ion) -> bool:
+    return _metal_of(ion.smiles) is not None
+
+
+# --------------------------------------------------------------------------- stoichiometry
+@dataclass(frozen=True)
+class Option:
+    """A stoichiometry before masses: who gives which proton to whom."""
+
+    stoichiometry: str
+    n_api: int
+    n_counterion: int
+    pairs: tuple[tuple[Any, int], ...]   # (API site, counterion pKa index) per proton transfer
+    delta_pkas: tuple[float, ...]
+
+    @property
+    def limiting(self) -> float:
+        return min(self.delta_pkas)
+
+
+def _site_order(sites, kind):
+    chosen = [s for s in sites if s.kind == kind]
+    if kind == "base":
+        return sorted(chosen, key=lambda s: (-s.pka, s.atom))
+    return sorted(chosen, key=lambda s: (s.pka, s.atom))
+
+
+def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> list[Option]:
+    """The stoichiometries worth considering for one counterion.
+
+    Parameters
+    ----------
+    sites : sequence of Site
+        The API's sites (acids and bases).
+    ion : Counterion
+        A library entry; its role decides which API sites it pairs with.
+    min_delta_pka : float
+        ΔpKa a *second* proton transfer must reach before 2:1 / 1:2 salts are proposed.
+
+    Returns
+    -------
+    list of Option
+        Always the 1:1 salt with the strongest opposite site (also when infeasible, so that it
+        can be reported as excluded); "k:1" (k API per counterion) when the counterion's next
+        pKa values also clear ``min_delta_pka`` (diacids: 2:1 salts, the 1:1 being the
+        hydrogen salt; diamines likewise); "2:1" for divalent metal cations with a monoacidic
+        drug (and "1:1" when the API's second acidic site qualifies); "1:2" bis-salts when
+        the API's second site clears the rule with a monoprotic counterion.
+        Empty when the API has no site of the opposite role or the counterion has no pKa.
+
+    Notes
+    -----
+    Stoichiometry rules: Stahl & Wermuth 2011 (common practice); see domain notes §3.
+    """
+    pkas = counterion_pkas(ion)
+    first = salt_pka_index(ion)
+    if first is None:
+        return []
+    api_kind = "base" if ion.role == "acid" else "acid"
+    ordered = _site_order(sites, api_kind)
+    if not ordered:
+        return []
+    s1 = ordered[0]
+    s2 = ordered[1] if len(ordered) > 1 else None
+
+    def dp(site, idx):
+        value = salt_pka(ion) if idx == first else pkas[idx]
+        if ion.role == "acid":
+            return delta_pka(site.pka, value)
+        return delta_pka(value, site.pka)
+
+    # next counterion pKa values in the order protons are given/taken
+    if ion.role == "acid":
+        further = list(range(first + 1, len(pkas)))
+    else:
+        further = list(range(first - 1, -1, -1))
+    metal = _metal_of(ion.smiles)
+    options: list[Option] = []
+
+    if metal is not None and metal[1] >= 2:
+        valence = metal[1]
+        # one metal ion takes `valence` protons; from `valence` API molecules ...
+        idx = [first] + further[: valence - 1]
+        idx += [idx[-1]] * (valence - len(idx))
+        options.append(Option(f"{valence}:1", valence, 1, tuple((s1, i) for i in idx),
+                              tuple(dp(s1, i) for i in idx)))
+        # ... or from one API with enough acidic sites (dianion + Ca²⁺)
+        if valence == 2 and s2 is not None:
+            pairs = ((s1, idx[0]), (s2, idx[1]))
+            deltas = tuple(dp(s, i) for s, i in pairs)
+            if min(deltas) >= min_delta_pka:
+                options.append(Option("1:1", 1, 1, pairs, deltas))
+        return options
+
+    options.append(Option("1:1", 1, 1, ((s1, first),), (dp(s1, first),)))
+    n_protons = getattr(ion, "n_protons", None)
+    polyprotic = [first] + (further if metal is None else [])
+    if n_protons:
+        polyprotic = polyprotic[: int(n_protons)]
+    # k API per counterion: the counterion's k-th pKa must also qualify against the API site
+    for k in range(2, len(polyprotic) + 1):
+        idx = polyprotic[:k]
+        deltas = tuple(dp(s1, i) for i in idx)
+        if deltas[-1] < min_delta_pka:
+            break
+        options.append(Option(f"{k}:1", k, 1, tuple((s1, i) for i in idx), deltas))
+    # bis-salt: the API's second site with a second (monoprotic) counterion
+    monoprotic = len(polyprotic) == 1 or (metal is not None and metal[1] == 1)
+    if s2 is not None and monoprotic:
+        pairs = ((s1, first), (s2, first))
+        deltas = tuple(dp(s, i) for s, i in pairs)
+        if min(deltas) >= min_delta_pka:
+            options.append(Option("1:2", 1, 2, pairs, deltas))
+    return options
+
+
+# --------------------------------------------------------------------------- composition
+@functools.lru_cache(maxsize=1024)
+def _mol_info(smiles: str) -> tuple[str, float]:
+    from rdkit import Chem
+    from rdkit.Chem import Descriptors, rdMolDescriptors
+
+    mol = Chem.MolFromSmiles(smiles)
+    if mol is None:
+        raise ParameterError(f"cannot parse SMILES '{smiles}' while computing a salt formula")
+    return rdMolDescriptors.CalcMolFormula(mol), Descriptors.MolWt(mol)
+
+
+def _proton_bearer(mol, idx: int) -> int:
+    """The atom that gives the proton: ``idx`` itself, else the nearest O/N/S with an H.
+
+    A site may be reported on the acidic centre rather than the H-bearing atom (the carbonyl
+    carbon of a carboxylic acid, a tetrazole carbon); the nearest heteroatom within three
+    bonds that still carries a hydrogen gives the proton.
+    """
+    from rdkit import Chem
+
+    if mol.GetAtomWithIdx(idx).GetTotalNumHs() > 0:
+        return idx
+    dist = Chem.GetDistanceMatrix(mol)
+    best = None
+    for atom in mol.GetAtoms():
+        j = atom.GetIdx()
+        d = dist[idx][j]
+        if 0 < d <= 3 and atom.GetSymbol() in ("O", "N", "S") and atom.GetTotalNumHs() > 0 \
+                and atom.GetFormalCharge() <= 0:
+            key = (d, j)
+            best = key if best is None or key < best else best
+    if best is None:
+        raise ParameterError(f"acidic site at atom {idx} has no hydrogen to give within three "
+                             "bonds; cannot draw its salt", field="sites")
+    return best[1]
+
+
+def _deprotonated(parent_smiles: str, atoms: tuple[int, ...]) -> str:
+    """SMILES of the API anion with one proton removed from each atom in ``atoms``."""
+    from rdkit import Chem
+
+    mol = Chem.RWMol(Chem.MolFromSmiles(parent_smiles))
+    for idx in atoms:
+        atom = mol.GetAtomWithIdx(_proton_bearer(mol, idx))
+        hs = atom.GetTotalNumHs()
+        atom.SetNoImplicit(True)
+        atom.SetNumExplicitHs(hs - 1)
+        atom.SetFormalCharge(atom.GetFormalCharge() - 1)
+    Chem.SanitizeMol(mol)
+    return Chem.MolToSmiles(mol)
+
+
+def _display(n_api: int, api_formula: str, n_ci: int, ion_formula: str) -> str:
+    """"C17H21NO·HCl", "(C17H21NO)2·H2SO4", "C17H21NO·2HCl", "(C2H3O2-)2·Ca+2"."""
+    left = api_formula if n_api == 1 else f"({api_formula}){n_api}"
+    right = ion_formula if n_ci == 1 else f"{n_ci}{ion_formula}"
+    return f"{left}·{right}"
+
+
+def compose(parent_smiles: str, ion, option: Option) -> Composition:
+    """Formula, salt MW and drug content of one stoichiometry.
+
+    Acids and organic bases: the salt holds the same atoms as API + counterion (the proton
+    moves). Metal cations: API minus the transferred protons plus the metal ion (the
+    hydroxide leaves as water). Formula and MW come from RDKit on the combined SMILES of
+    the salt species, so they are exact to RDKit's (IUPAC) atomic weights.
+
+    Drug content = n_API·MW(API)/MW(salt)·100 [% w/w free form].
+    """
+    api_formula, api_mw = _mol_info(parent_smiles)
+    metal = _metal_of(ion.smiles)
+    n_api, n_ci = option.n_api, option.n_counterion
+    if metal is None:
+        ion_formula, ion_mw = _mol_info(ion.smiles)
+        salt_smiles = ".".join([parent_smiles] * n_api + [ion.smiles] * n_ci)
+        formula, salt_mw = _mol_info(salt_smiles)
+        display = _display(n_api, api_formula, n_ci, ion_formula)
+        counterion_mass = n_ci * ion_mw / n_api
+    else:
+        from rdkit import Chem
+
+        sym, charge = metal
+        # protons leave API copy by copy: a 2:1 calcium salt takes one from each of two APIs
+        per_copy: list[list[int]] = [[] for _ in range(n_api)]
+        for k, (site, _) in enumerate(option.pairs):
+            per_copy[k % n_api].append(site.atom)
+        anions = [_deprotonated(parent_smiles, tuple(atoms)) for atoms in per_copy]
+        cation = f"[{sym}+{charge if charge > 1 else ''}]"
+        salt_smiles = ".".join(anions + [cation] * n_ci)
+        formula, salt_mw = _mol_info(salt_smiles)
+        anion_formula = _mol_info(anions[0])[0]
+        display = _display(n_api, anion_formula, n_ci, _mol_info(cation)[0])
+        counterion_mass = n_ci * Chem.GetPeriodicTable().GetAtomicWeight(sym) / n_api
+    return Composition(n_api, n_ci, salt_smiles, formula, display, salt_mw,
+                       100.0 * n_api * api_mw / salt_mw, counterion_mass)
+
+
+# --------------------------------------------------------------------------- assessment
+def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float = 2.0,
+           thresholds: Thresholds = DEFAULT_THRESHOLDS, slope: float = 0.17,
+           intercept: float = 0.28) -> list[Candidate]:
+    """All counterion × stoichiometry candidates for an API (unranked, no caveats yet).
+
+    Parameters
+    ----------
+    parent : Parent
+        The standardized API (its ``smiles`` and atom order).
+    sites : sequence of Site
+        Ionizable sites of ``parent`` (estimated or measured).
+    library : iterable of Counterion
+    min_delta_pka : float
+        ``feasible`` = limiting ΔpKa ≥ this [pKa units] (default 2, common practice).
+    thresholds : Thresholds
+        Category limits.
+
+    Returns
+    -------
+    list of Candidate
+        In library order, stoichiometries in the order of :func:`stoichiometry_options`.
+    """
+    out: list[Candidate] = []
+    for ion in library:
+        for opt in stoichiometry_options(sites, ion, min_delta_pka):
+            comp = compose(parent.smiles, ion, opt)
+            limiting = opt.limiting
+            transfers = tuple(
+                Transfer(api_atom=site.atom, api_kind=site.kind, api_pka=float(site.pka),
+                         api_pka_provenance=str(getattr(site, "provenance", "estimated")),
+                         api_pka_source=str(getattr(site, "source", "")),
+                         counterion_pka=(salt_pka(ion) if i == salt_pka_index(ion)
+                                         else counterion_pkas(ion)[i]),
+                         counterion_pka_index=i, counterion_pka_source=pka_source(ion, i),
+                         delta_pka=d)
+                for (site, i), d in zip(opt.pairs, opt.delta_pkas))
+            feasible = limiting >= min_delta_pka
+            sites_used = tuple(dict.fromkeys(site.atom for site, _ in opt.pairs))
+            out.append(Candidate(
+                counterion=ion.id, counterion_name=str(getattr(ion, "name", ion.id)),
+                stoichiometry=opt.stoichiometry, api_sites=sites_used,
+                delta_pka=limiting, delta_pkas=opt.delta_pkas,
+                category=categorize(limiting, thresholds), feasible=feasible,
+                probability=transfer_probability(limiting, slope, intercept),
+                formula=comp.formula, salt_mw=comp.salt_mw, drug_content=comp.drug_content,
+                transfers=transfers, formula_display=comp.formula_display,
+                salt_smiles=comp.salt_smiles, counterion_mass_per_api=comp.counterion_mass_per_api,
+                tier=getattr(ion, "tier", None),
+                reason=None if feasible else
+                f"ΔpKa {limiting:.2f} below the minimum {min_delta_pka:g}"))
+    return out

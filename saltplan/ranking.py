@@ -1,0 +1,231 @@
+"""Rank salt candidates with a transparent score.
+
+score = Σ weight·term, each term in 0..1, bonuses added and penalties subtracted:
+
+* ``delta_pka_margin`` — clip(ΔpKa / saturation, 0, 1) (saturates near ΔpKa 4, above which
+  crystal structures are almost only salts; Cruz-Cabeza 2012);
+* ``tier`` — acceptability tier of the counterion (Stahl & Wermuth 2011, as in the library);
+* ``precedence`` — how often the counterion appears in marketed salts (common practice);
+* ``mass`` — (1 − drug content) scaled by the daily dose (matters more at high dose);
+* ``liabilities`` — one penalty per counterion flag, stronger when the API's structure
+  triggers it (see :mod:`saltplan.caveats`);
+* ``hygroscopicity`` — tendency of the counterion's salts to take up water;
+* ``disproportionation`` — pHmax against a typical formulation microenvironment pH;
+* ``stoichiometry`` — a stoichiometry the library does not list for that counterion.
+
+Weights and thresholds live in ``saltplan/data/ranking_weights.yaml``; a user file given to
+:func:`load_ranking_config` overrides any of them. Ties break deterministically: score
+(desc), ΔpKa (desc), counterion id, stoichiometry.
+"""
+from __future__ import annotations
+
+import copy
+import functools
+import json
+import math
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any, Iterable, Mapping
+
+from .assessment import Candidate, Thresholds
+from .errors import ParameterError
+
+BREAKDOWN_KEYS = ("delta_pka_margin", "tier", "precedence", "mass", "liabilities",
+                  "hygroscopicity", "disproportionation", "stoichiometry")
+#: sections whose keys are open (new flags, counterion ids, tiers may be added)
+_OPEN_SECTIONS = {"liability_penalties", "exposure_mg_day", "tier_scores",
+                  "hygroscopicity_scores"}
+
+
+@dataclass(frozen=True)
+class RankingConfig:
+    """The effective ranking configuration: defaults merged with a user file."""
+
+    data: Mapping[str, Any]
+    source: str
+    hash: str
+
+    @property
+    def thresholds(self) -> Thresholds:
+        t = self.data["thresholds"]
+        return Thresholds(float(t["salt_expected"]), float(t["likely"]), float(t["uncertain"]))
+
+    @property
+    def caveat_settings(self) -> Mapping[str, Any]:
+        return self.data["caveats"]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"source": self.source, "hash": self.hash,
+                "thresholds": self.thresholds.to_dict(),
+                "probability": dict(self.data["probability"]),
+                "weights": dict(self.data["weights"])}
+
+
+@functools.lru_cache(maxsize=1)
+def _defaults() -> dict[str, Any]:
+    from ._data import package_yaml
+
+    return package_yaml("data", "ranking_weights.yaml")
+
+
+def _merge(base: Any, user: Any, where: str, origin: str) -> Any:
+    if isinstance(base, dict):
+        if not isinstance(user, dict):
+            raise ParameterError(f"expected a mapping, got {type(user).__name__}",
+                                 file=origin, field=where or "top level")
+        out = copy.deepcopy(base)
+        section = where.rsplit(".", 1)[-1]
+        for key, value in user.items():
+            path = f"{where}.{key}" if where else str(key)
+            if key not in base:
+                if section in _OPEN_SECTIONS:
+                    out[key] = _validated_leaf(value, path, origin)
+                    continue
+                raise ParameterError(f"unknown key (allowed: {', '.join(map(str, base))})",
+                                     file=origin, field=path)
+            out[key] = _merge(base[key], value, path, origin)
+        return out
+    if isinstance(base, list):
+        if not isinstance(user, list) or not all(isinstance(x, str) for x in user):
+            raise ParameterError("expected a list of counterion ids", file=origin, field=where)
+        return list(user)
+    if isinstance(base, (int, float)) and not isinstance(base, bool):
+        return _validated_leaf(user, where, origin)
+    return user
+
+
+def _validated_leaf(value, where, origin):
+    if isinstance(value, dict):
+        return {k: _validated_leaf(v, f"{where}.{k}", origin) for k, v in value.items()}
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise ParameterError(f"must be a finite number, got {value!r}", file=origin, field=where)
+    return value
+
+
+def load_ranking_config(path: str | Path | None = None) -> RankingConfig:
+    """Ranking configuration: the shipped defaults, overridden by ``path`` when given.
+
+    Raises
+    ------
+    ParameterError
+        Missing file, invalid YAML, unknown keys, non-numeric values, thresholds out of order.
+    """
+    if path is None:
+        return _default_config()
+    from ._data import load_yaml_path, sha256_text
+
+    user = load_yaml_path(path) or {}
+    data = _merge(_defaults(), user, "", str(path))
+    cfg = RankingConfig(data, f"saltplan/data/ranking_weights.yaml + {path}",
+                        sha256_text(json.dumps(data, sort_keys=True, default=str)))
+    _check(cfg, str(path))
+    return cfg
+
+
+@functools.lru_cache(maxsize=1)
+def _default_config() -> RankingConfig:
+    from ._data import sha256_text
+
+    data = _defaults()
+    cfg = RankingConfig(data, "saltplan/data/ranking_weights.yaml",
+                        sha256_text(json.dumps(data, sort_keys=True, default=str)))
+    _check(cfg, "saltplan/data/ranking_weights.yaml")
+    return cfg
+
+
+def _check(cfg: RankingConfig, origin: str) -> None:
+    try:
+        cfg.thresholds
+    except ParameterError as exc:
+        raise ParameterError(exc.message, file=origin, field="thresholds") from None
+    for key, value in cfg.data["weights"].items():
+        if value < 0:
+            raise ParameterError(f"weight must be ≥ 0, got {value}", file=origin,
+                                 field=f"weights.{key}")
+    if cfg.data["margin"]["saturation"] <= 0:
+        raise ParameterError("must be > 0", file=origin, field="margin.saturation")
+    if cfg.data["disproportionation"]["span"] <= 0:
+        raise ParameterError("must be > 0", file=origin, field="disproportionation.span")
+
+
+# --------------------------------------------------------------------------- terms
+def _clip01(x: float) -> float:
+    return min(1.0, max(0.0, x))
+
+
+def dose_factor(dose_mg: float | None, cfg: RankingConfig) -> float:
+    """How much the counterion mass matters at this daily dose (0..1)."""
+    m = cfg.data["mass"]
+    dose = m["unknown_dose_mg"] if dose_mg is None else dose_mg
+    floor = m["min_dose_factor"]
+    return floor + (1.0 - floor) * min(1.0, dose / m["reference_dose_mg"])
+
+
+def disproportionation_risk(ph_max: float | None, counterion_role: str,
+                            cfg: RankingConfig) -> float:
+    """0..1: how far pHmax lies on the wrong side of the formulation microenvironment pH."""
+    if ph_max is None:
+        return 0.0
+    d = cfg.data["disproportionation"]
+    if counterion_role == "acid":      # salt of a base: free base forms above pHmax
+        return _clip01((d["microenvironment_ph"] + d["safe_margin"] - ph_max) / d["span"])
+    return _clip01((ph_max - (d["microenvironment_ph"] - d["safe_margin"])) / d["span"])
+
+
+def precedence_score(counterion_id: str, cfg: RankingConfig) -> float:
+    p = cfg.data["precedence"]
+    if counterion_id in p["frequent"]:
+        return float(p["scores"]["frequent"])
+    if counterion_id in p["occasional"]:
+        return float(p["scores"]["occasional"])
+    return float(p["scores"]["other"])
+
+
+def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
+                    triggered_flags: Iterable[str] = (),
+                    cfg: RankingConfig | None = None) -> tuple[float, dict[str, float]]:
+    """Score and signed breakdown (weight × term; penalties negative) of one candidate."""
+    cfg = cfg or load_ranking_config()
+    w = cfg.data["weights"]
+    triggered = set(triggered_flags)
+    margin = _clip01(candidate.delta_pka / cfg.data["margin"]["saturation"])
+    tiers = cfg.data["tier_scores"]
+    tier = getattr(ion, "tier", None)
+    tier_term = float(tiers.get(tier, tiers.get(str(tier), 0.0))) if tier is not None else 0.0
+    mass = (1.0 - candidate.drug_content / 100.0) * dose_factor(dose_mg, cfg)
+    penalties = cfg.data["liability_penalties"]
+    factor = cfg.data["api_trigger_factor"]
+    liab = sum(float(penalties.get(f, 0.0)) * (factor if f in triggered else 1.0)
+               for f in dict.fromkeys(getattr(ion, "flags", ()) or ()))
+    hyg_scores = cfg.data["hygroscopicity_scores"]
+    hyg = float(hyg_scores.get(str(getattr(ion, "hygroscopicity", None) or "unknown"),
+                               hyg_scores.get("unknown", 0.0)))
+    dispro = disproportionation_risk(candidate.ph_max, ion.role, cfg)
+    listed = tuple(getattr(ion, "stoichiometries", ()) or ())
+    unlisted = 1.0 if listed and candidate.stoichiometry not in listed else 0.0
+    breakdown = {
+        "delta_pka_margin": w["delta_pka_margin"] * margin,
+        "tier": w["tier"] * tier_term,
+        "precedence": w["precedence"] * precedence_score(candidate.counterion, cfg),
+        "mass": -w["mass"] * mass,
+        "liabilities": -w["liabilities"] * liab,
+        "hygroscopicity": -w["hygroscopicity"] * hyg,
+        "disproportionation": -w["disproportionation"] * dispro,
+        "stoichiometry": -w["stoichiometry"] * unlisted,
+    }
+    breakdown = {k: (0.0 if v == 0 else v) for k, v in breakdown.items()}  # no "-0.0"
+    return sum(breakdown.values()), breakdown
+
+
+def order(candidates: Iterable[Candidate]) -> list[Candidate]:
+    """Sort by score (desc), ΔpKa (desc), counterion id, stoichiometry."""
+    return sorted(candidates, key=lambda c: c.sort_key)
+
+
+def rank(candidates: Iterable[Candidate]) -> tuple[list[Candidate], list[Candidate]]:
+    """Split scored candidates into (feasible ranked 1…n, excluded ranked n+1…)."""
+    feasible = order(c for c in candidates if c.feasible)
+    excluded = order(c for c in candidates if not c.feasible)
+    ranked = [replace(c, rank=i) for i, c in enumerate(feasible, start=1)]
+    start = len(ranked) + 1
+    return ranked, [replace(c, rank=i) for i, c in enumerate(excluded, start=start)]

@@ -1,0 +1,197 @@
+"""Reports of a salt plan (and its screen design): HTML, Markdown and JSON.
+
+Templates live in ``saltplan/reports/templates`` and are loaded with
+:class:`jinja2.PackageLoader` (works from the wheel). HTML autoescaping is on; the Markdown
+environment neutralizes every ``{{ }}`` output (see :mod:`saltplan.reports.markdown`);
+both use :class:`jinja2.StrictUndefined`, so a missing key fails loudly instead of
+rendering a blank. The HTML page is self-contained: inline CSS and SVG, no script, no
+network request (a Content-Security-Policy meta tag forbids any).
+
+Public functions take the ``to_dict()`` output of :class:`~saltplan.plan.Plan` and
+:class:`~saltplan.screen.ScreenDesign` (or the objects themselves).
+"""
+from __future__ import annotations
+
+import functools
+import json
+import math
+from pathlib import Path
+from typing import Any
+
+__all__ = ["render_plan_html", "render_plan_fragment", "render_plan_markdown",
+           "render_plan_json", "write_plan_report", "repr_html", "html_environment",
+           "markdown_environment"]
+
+REPORT_FILES = ("report.html", "report.md", "plan.json")
+
+
+def _as_dict(obj: Any) -> Any:
+    if obj is None or isinstance(obj, dict):
+        return obj
+    to_dict = getattr(obj, "to_dict", None)
+    if callable(to_dict):
+        return to_dict()
+    raise TypeError(f"expected a dict or an object with to_dict(), got {type(obj).__name__}")
+
+
+@functools.lru_cache(maxsize=1)
+def html_environment():
+    """The Jinja2 environment of the HTML templates (autoescape on, StrictUndefined).
+
+    Other report templates (e.g. a decision record) can use it and reuse
+    ``partials/style.css.j2`` and ``partials/macros.html.j2``.
+    """
+    import jinja2
+
+    env = jinja2.Environment(
+        loader=jinja2.PackageLoader("saltplan.reports", "templates"),
+        autoescape=jinja2.select_autoescape(enabled_extensions=("html", "html.j2", "j2"),
+                                            default_for_string=True, default=True),
+        undefined=jinja2.StrictUndefined, trim_blocks=False, lstrip_blocks=False,
+        keep_trailing_newline=True)
+    return env
+
+
+@functools.lru_cache(maxsize=1)
+def markdown_environment():
+    """The Jinja2 environment of the Markdown templates (user text neutralized)."""
+    import jinja2
+
+    from .markdown import MdRaw, finalize, md_escape, raw
+
+    env = jinja2.Environment(
+        loader=jinja2.PackageLoader("saltplan.reports", "templates"),
+        autoescape=False, undefined=jinja2.StrictUndefined, finalize=finalize,
+        keep_trailing_newline=True)
+    env.filters["raw"] = raw
+    env.filters["mdcode"] = lambda s: MdRaw(str(s)) if "`" not in str(s) else md_escape(s)
+    return env
+
+
+def _context(plan: Any, screen: Any, graphics: bool = True) -> dict:
+    from .context import build_context
+
+    plan_d = _as_dict(plan)
+    screen_d = _as_dict(screen)
+    if plan_d is None and screen_d is not None:
+        plan_d = screen_d["plan"]
+    return build_context(plan_d, screen_d, graphics=graphics)
+
+
+def _markdown(ctx: dict) -> str:
+    text = markdown_environment().get_template("plan.md.j2").render(**ctx)
+    out: list[str] = []
+    for line in (line.rstrip() for line in text.splitlines()):
+        if line or (out and out[-1]):        # at most one blank line in a row
+            out.append(line)
+    return "\n".join(out).strip() + "\n"
+
+
+def render_plan_html(plan_dict: Any, screen_dict: Any = None) -> str:
+    """The plan (and screen) as one self-contained HTML page.
+
+    Parameters
+    ----------
+    plan_dict : dict or Plan
+        ``Plan.to_dict()`` (or the Plan).
+    screen_dict : dict or ScreenDesign, optional
+        ``ScreenDesign.to_dict()``; adds the plate map, wells and dropped combinations.
+
+    Raises
+    ------
+    KeyError
+        (:class:`saltplan.reports.context.MissingKey`) naming a missing required key.
+    """
+    ctx = _context(plan_dict, screen_dict)
+    return html_environment().get_template("plan.html.j2").render(**ctx)
+
+
+def render_plan_fragment(plan_dict: Any, screen_dict: Any = None) -> str:
+    """The report as an embeddable HTML fragment (scoped ``<style>`` + ``<div>``)."""
+    ctx = _context(plan_dict, screen_dict)
+    return html_environment().get_template("plan_fragment.html.j2").render(**ctx)
+
+
+def render_plan_markdown(plan_dict: Any, screen_dict: Any = None) -> str:
+    """The plan (and screen) as Markdown (GitHub-flavoured tables; charts only in HTML)."""
+    return _markdown(_context(plan_dict, screen_dict, graphics=False))
+
+
+def _check_finite(value: Any, path: str) -> None:
+    if isinstance(value, float) and not math.isfinite(value):
+        raise ValueError(f"plan JSON: non-finite number {value!r} at '{path}'")
+    if isinstance(value, dict):
+        for k, v in value.items():
+            _check_finite(v, f"{path}.{k}")
+    elif isinstance(value, (list, tuple)):
+        for i, v in enumerate(value):
+            _check_finite(v, f"{path}[{i}]")
+
+
+def render_plan_json(plan_dict: Any, screen_dict: Any = None) -> str:
+    """Deterministic JSON of the plan dict (indent 2, UTF-8 text, key order kept, no NaN).
+
+    With ``screen_dict`` the result is ``{"plan": ..., "screen": ...}`` (the screen's own
+    files are written by :mod:`saltplan.screen`).
+    """
+    data = _as_dict(plan_dict)
+    if screen_dict is not None:
+        data = {"plan": data, "screen": _as_dict(screen_dict)}
+    _check_finite(data, "plan")
+    return json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def write_plan_report(plan: Any, out_dir: str | Path, screen: Any = None) -> list[Path]:
+    """Write ``report.html``, ``report.md`` and ``plan.json`` into ``out_dir``.
+
+    Everything is rendered in memory first and written atomically
+    (:class:`saltplan._io.OutputSet`): on any error no file is written.
+
+    Returns
+    -------
+    list of Path
+        The written files, in the order of :data:`REPORT_FILES`.
+    """
+    from .._io import OutputSet
+
+    plan_d = _as_dict(plan)
+    screen_d = _as_dict(screen)
+    ctx = _context(plan_d, screen_d)
+    out = OutputSet(out_dir)
+    out.add("report.html", html_environment().get_template("plan.html.j2").render(**ctx))
+    out.add("report.md", _markdown(ctx))
+    out.add("plan.json", render_plan_json(plan_d))
+    return out.commit()
+
+
+def repr_html(obj: Any) -> str:
+    """HTML for Jupyter's ``_repr_html_`` of a Plan, ScreenDesign or Selection.
+
+    Plans and screen designs render the report fragment. A Selection renders through
+    ``saltplan.select.render_selection_html`` when that module provides it, else as an
+    escaped key/value table in the report style.
+    """
+    d = _as_dict(obj)
+    if "verdict" in d and "candidates" in d:
+        return render_plan_fragment(d)
+    if "wells" in d and "plan" in d:
+        return render_plan_fragment(d["plan"], d)
+    try:
+        from .. import select as _select
+        render = getattr(_select, "render_selection_html", None)
+    except ImportError:
+        render = None
+    if callable(render):
+        return render(obj)
+    return _generic_fragment(d)
+
+
+def _generic_fragment(d: dict) -> str:
+    env = html_environment()
+    template = env.from_string(
+        '<style>{% include "partials/style.css.j2" %}</style>'
+        '<div class="sp-report"><table><tbody>{% for k, v in rows %}<tr><th>{{ k }}</th>'
+        '<td class="sp-mono">{{ v }}</td></tr>{% endfor %}</tbody></table></div>')
+    rows = [(k, v if isinstance(v, str) else json.dumps(v, ensure_ascii=False))
+            for k, v in d.items()]
+    return template.render(rows=rows)

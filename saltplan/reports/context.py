@@ -1,0 +1,403 @@
+"""Turn a plan dict (and a screen dict) into the view model the templates render.
+
+The templates stay dumb: every derived string, table row and chart is made here, once,
+for HTML and Markdown alike. Required keys of the input dicts are read with
+:func:`need`, which raises a ``KeyError`` naming the dotted path of a missing key;
+optional sections (screen, solubility, sites) may be absent or empty.
+"""
+from __future__ import annotations
+
+import json
+from typing import Any
+
+from . import charts, drawing, platemap, rationale
+
+CATEGORY_LABELS = {"salt_expected": "salt expected", "likely": "likely",
+                   "uncertain": "uncertain", "unlikely": "unlikely"}
+SEVERITY_ORDER = {"serious": 0, "warning": 1, "info": 2}
+PROVENANCE_SHORT = {"measured": "meas.", "user": "user", "estimated": "est."}
+
+
+class MissingKey(KeyError):
+    """A required key is missing from a plan / screen dict (message names its path)."""
+
+    def __str__(self) -> str:
+        return str(self.args[0])
+
+
+def need(d: Any, key: str, where: str) -> Any:
+    """``d[key]``, or :class:`MissingKey` naming ``where.key``."""
+    if not isinstance(d, dict):
+        raise MissingKey(f"report input: '{where}' must be a mapping, got {type(d).__name__}")
+    if key not in d:
+        raise MissingKey(f"report input: missing required key '{where}.{key}'")
+    return d[key]
+
+
+def text_of(item: Any) -> str:
+    """Plain text of a caution / reference that may be a string or a small dict."""
+    if isinstance(item, str):
+        return item
+    if isinstance(item, dict):
+        for key in ("text", "citation", "reference", "title"):
+            if item.get(key):
+                return str(item[key])
+    return json.dumps(item, ensure_ascii=False, sort_keys=True)
+
+
+def fmt(value: Any, digits: int = 2, unit: str = "") -> str:
+    """A number with fixed decimals (``−`` for negatives), or "n/a" for None."""
+    if value is None:
+        return "n/a"
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return str(value)
+    s = f"{value:.{digits}f}".replace("-", "−")
+    return f"{s} {unit}".strip()
+
+
+# --------------------------------------------------------------------------- sections
+def thresholds_of(plan: dict) -> dict:
+    inputs = need(plan, "inputs", "plan")
+    found = inputs.get("thresholds") or plan.get("thresholds")
+    if found:
+        return dict(found)
+    from ..assessment import DEFAULT_THRESHOLDS
+
+    out = DEFAULT_THRESHOLDS.to_dict()
+    out["source"] = f"{out['source']} (defaults; the plan did not record its thresholds)"
+    return out
+
+
+def bands_of(th: dict) -> list[dict]:
+    return [{"code": "unlikely", "lo": None, "hi": th["uncertain"]},
+            {"code": "uncertain", "lo": th["uncertain"], "hi": th["likely"]},
+            {"code": "likely", "lo": th["likely"], "hi": th["salt_expected"]},
+            {"code": "salt_expected", "lo": th["salt_expected"], "hi": None}]
+
+
+def site_views(plan: dict) -> list[dict]:
+    from rdkit import Chem
+
+    from ..structure import rdkit_messages
+
+    parent = need(plan, "parent", "plan")
+    with rdkit_messages():
+        mol = Chem.MolFromSmiles(need(parent, "smiles", "plan.parent"))
+    out = []
+    for i, s in enumerate(need(plan, "sites", "plan")):
+        where = f"plan.sites[{i}]"
+        atom = int(need(s, "atom", where))
+        symbol = (mol.GetAtomWithIdx(atom).GetSymbol()
+                  if mol is not None and 0 <= atom < mol.GetNumAtoms() else "?")
+        prov = need(s, "provenance", where)
+        steps = []
+        for j, st in enumerate(need(s, "steps", where)):
+            w = f"{where}.steps[{j}]"
+            steps.append({"label": need(st, "label", w), "value": need(st, "value", w),
+                          "value_text": fmt(need(st, "value", w)),
+                          "detail": st.get("detail") or "", "source": st.get("source") or ""})
+        out.append({
+            "atom": atom, "label": f"{symbol}{atom}", "kind": need(s, "kind", where),
+            "pka": need(s, "pka", where), "pka_text": fmt(need(s, "pka", where)),
+            "uncertainty": s.get("uncertainty"),
+            "uncertainty_text": "±" + fmt(s["uncertainty"]) if s.get("uncertainty") else
+            ("—" if prov != "estimated" else "n/a"),
+            "group": need(s, "group", where), "group_id": s.get("group_id") or "",
+            "provenance": prov, "provenance_short": PROVENANCE_SHORT.get(prov, prov),
+            "source": s.get("source") or "", "steps": steps,
+            "drawing_label": drawing.site_label(s),
+        })
+    return out
+
+
+def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[dict]:
+    site_label = {s["atom"]: s["label"] for s in sites}
+    site_unc = {s["atom"]: s["uncertainty"] for s in sites if s["provenance"] == "estimated"}
+    keys: list[str] = []
+    for c in cands:
+        for k in (c.get("breakdown") or {}):
+            if k not in keys:
+                keys.append(k)
+    top = max([float(c.get("score") or 0.0) for c in cands] + [1e-9])
+    out = []
+    for i, c in enumerate(cands):
+        w = f"{where}[{i}]"
+        cid = need(c, "counterion", w)
+        name = c.get("counterion_name") or ""
+        bd = c.get("breakdown") or {}
+        parts = [{"key": k, "label": k.replace("_", " "), "value": float(bd[k]),
+                  "text": fmt(float(bd[k]), 3), "colour": charts.part_colour(keys.index(k))}
+                 for k in keys if k in bd]
+        positive_total = sum(p["value"] for p in parts if p["value"] > 0)
+        caveats = sorted((c.get("caveats") or []),
+                         key=lambda cv: (SEVERITY_ORDER.get(cv.get("severity"), 9),
+                                         cv.get("code") or ""))
+        transfers = []
+        for t in c.get("transfers") or []:
+            prov = t.get("api_pka_provenance") or ""
+            transfers.append({
+                "site": site_label.get(t.get("api_atom"), f"atom {t.get('api_atom')}"),
+                "api_pka": fmt(t.get("api_pka")), "api_provenance": prov,
+                "api_provenance_short": PROVENANCE_SHORT.get(prov, prov),
+                "api_source": t.get("api_pka_source") or "",
+                "counterion_pka": fmt(t.get("counterion_pka")),
+                "counterion_source": t.get("counterion_pka_source") or "",
+                "delta_pka": fmt(t.get("delta_pka")),
+                "api_kind": t.get("api_kind") or "",
+            })
+        dpkas = c.get("delta_pkas") or []
+        raw_t = c.get("transfers") or []
+        limiting = min(raw_t, key=lambda t: (float(t.get("delta_pka") or 0.0),
+                                             t.get("api_atom") or 0), default=None)
+        limiting_unc = (site_unc.get(limiting.get("api_atom"))
+                        if limiting and limiting.get("api_pka_provenance") == "estimated"
+                        else None)
+        out.append({
+            "rank": c.get("rank"), "counterion": cid, "counterion_name": name,
+            "label": f"{cid} ({name})" if name and name != cid else cid,
+            "stoichiometry": need(c, "stoichiometry", w),
+            "delta_pka": need(c, "delta_pka", w), "delta_pka_text": fmt(c["delta_pka"]),
+            "delta_pkas_text": ", ".join(fmt(d) for d in dpkas) if len(dpkas) > 1 else "",
+            "category": need(c, "category", w),
+            "category_label": CATEGORY_LABELS.get(c["category"], c["category"]),
+            "feasible": bool(c.get("feasible", True)),
+            "probability": c.get("probability"),
+            "probability_text": "n/a" if c.get("probability") is None
+            else f"{100 * float(c['probability']):.0f} %",
+            "tier": c.get("tier"), "formula_display": c.get("formula_display") or
+            c.get("formula") or "", "salt_mw_text": fmt(c.get("salt_mw"), 2, "g/mol"),
+            "drug_content": c.get("drug_content"),
+            "drug_content_text": fmt(c.get("drug_content"), 1, "%"),
+            "mass_source": c.get("mass_source") or "",
+            "score": c.get("score"), "score_text": fmt(c.get("score"), 3),
+            "parts": parts,
+            "bar_svg": charts.score_bar([(p["key"], p["value"]) for p in parts],
+                                        scale=max(top, positive_total)),
+            "caveats": caveats, "top_caveat": caveats[0] if caveats else None,
+            "transfers": transfers, "api_sites": [site_label.get(a, str(a))
+                                                  for a in c.get("api_sites") or []],
+            "ph_max_text": fmt(c.get("ph_max")), "ph_max_basis": c.get("ph_max_basis") or "",
+            "reason": c.get("reason") or "", "limiting_uncertainty": limiting_unc,
+        })
+    return out
+
+
+def solubility_view(sol: Any) -> dict | None:
+    """Normalize the plan's solubility sketch; None when absent."""
+    if not sol:
+        return None
+    points: list[tuple[float, float]] = []
+    profile = sol.get("profile") or sol.get("ph_profile") or []
+    if isinstance(profile, dict) and "ph" in profile:
+        ys = profile.get("s_mg_ml") or profile.get("solubility_mg_ml") or []
+        points = list(zip(profile["ph"], ys))
+    else:
+        for p in profile:
+            if isinstance(p, dict):
+                points.append((p.get("ph"), p.get("s_mg_ml", p.get("solubility_mg_ml"))))
+            else:
+                points.append((p[0], p[1]))
+    points = [(float(x), float(y)) for x, y in points if x is not None and y is not None]
+    s0 = sol.get("s0_mg_ml")
+    rows = []
+    for key, value in sol.items():
+        if key in ("profile", "ph_profile"):
+            continue
+        rows.append({"label": key.replace("_", " "),
+                     "value": fmt(value, 3) if isinstance(value, float) else
+                     (", ".join(map(str, value)) if isinstance(value, list) else str(value))})
+    return {"points": points, "s0": s0, "ph_max": sol.get("ph_max"), "unit": "mg/mL",
+            "rows": rows}
+
+
+def input_rows(plan: dict, th: dict) -> list[dict]:
+    inputs = need(plan, "inputs", "plan")
+    parent = need(plan, "parent", "plan")
+    prov = need(plan, "provenance", "plan")
+    rows = [
+        {"label": "compound", "value": plan.get("name") or "(unnamed)", "prov": "user"},
+        {"label": "structure as supplied", "value": parent.get("input") or
+         inputs.get("smiles") or "", "prov": "user"},
+        {"label": "parent (free form) SMILES", "value": need(parent, "smiles", "plan.parent"),
+         "prov": "computed: saltplan structure standardization (RDKit)"},
+        {"label": "supplied form", "value": parent.get("supplied_as") or "free form",
+         "prov": "computed from the supplied structure"},
+        {"label": "formula, molecular weight", "value":
+         f"{parent.get('formula') or ''}, {fmt(parent.get('mw'), 2, 'g/mol')}",
+         "prov": "computed: RDKit average atomic weights (IUPAC)"},
+        {"label": "dose", "value": fmt(inputs.get("dose_mg"), 0, "mg/day")
+         if inputs.get("dose_mg") is not None else "not given: counterion exposure not assessed",
+         "prov": "user" if inputs.get("dose_mg") is not None else "—"},
+        {"label": "route", "value": inputs.get("route") or "not given", "prov": "user"},
+        {"label": "measured pKa supplied", "value": _measured_text(inputs.get("measured")),
+         "prov": "user" if inputs.get("measured") else "—"},
+        {"label": "counterion libraries", "value": "built-in" + "".join(
+            f"; {p}" for p in (inputs.get("libraries") or [])),
+         "prov": f"library hash {str(need(prov, 'library_hash', 'plan.provenance'))[:16]}… "
+                 "(full hash under Provenance)"},
+        {"label": "ΔpKa category thresholds", "value":
+         f"salt expected ≥ {fmt(th['salt_expected'], 1)}; likely ≥ {fmt(th['likely'], 1)}; "
+         f"uncertain ≥ {fmt(th['uncertain'], 1)}; below: unlikely", "prov": th.get("source", "")},
+    ]
+    known = {"smiles", "dose_mg", "route", "measured", "libraries", "thresholds"}
+    for key, value in inputs.items():
+        if key in known or value is None or value == [] or value == {}:
+            continue
+        rows.append({"label": key.replace("_", " "), "value": _plain(value), "prov": "user / default"})
+    return rows
+
+
+def _plain(value: Any) -> str:
+    if isinstance(value, float):
+        return fmt(value, 2)
+    if isinstance(value, (dict, list)):
+        return json.dumps(value, ensure_ascii=False, sort_keys=False)
+    return str(value)
+
+
+def _measured_text(measured: Any) -> str:
+    if not measured:
+        return "none: every pKa shown is an estimate"
+    if isinstance(measured, dict):
+        return "; ".join(f"{k}: {fmt(v) if isinstance(v, (int, float)) else v}"
+                         for k, v in measured.items())
+    if isinstance(measured, (list, tuple)):
+        return "; ".join(fmt(v) for v in measured)
+    return str(measured)
+
+
+def verdict_view(plan: dict, cands: list[dict]) -> dict:
+    v = need(plan, "verdict", "plan")
+    return {"code": need(v, "code", "plan.verdict"), "text": need(v, "text", "plan.verdict"),
+            "alternatives": [text_of(a) for a in (v.get("alternatives") or [])],
+            "top": [c for c in cands if c["feasible"]][:3],
+            "has_salts": need(v, "code", "plan.verdict") == "salt_candidates" and bool(cands)}
+
+
+# --------------------------------------------------------------------------- screen
+def screen_view(screen: dict | None) -> dict | None:
+    if not screen:
+        return None
+    wells = need(screen, "wells", "screen")
+    solvents = [dict(s) for s in (screen.get("solvents") or [])]
+    names = {s.get("id"): s.get("name") or s.get("id") for s in solvents}
+    wells_rows = []
+    for i, w in enumerate(wells):
+        where = f"screen.wells[{i}]"
+        need(w, "well", where)
+        need(w, "kind", where)
+        wells_rows.append({
+            "well": w["well"], "kind": w["kind"], "counterion": w.get("counterion") or "—",
+            "stoichiometry": w.get("stoichiometry") or "—",
+            "equivalents": fmt(w.get("equivalents"), 2), "solvent": w.get("solvent") or "",
+            "mode": w.get("mode") or "", "api_mg": fmt(w.get("api_mg"), 2),
+            "counterion_mg": fmt(w.get("counterion_mg"), 2) if w.get("counterion_mg") else "—",
+            "counterion_ul": fmt(w.get("counterion_ul"), 1) if w.get("counterion_ul") else "—",
+            "stock_ul": fmt(w.get("stock_ul"), 1) if w.get("stock_ul") else "—",
+            "solvent_ul": fmt(w.get("solvent_ul"), 0) if w.get("solvent_ul") else "—",
+            "flags": ", ".join(w.get("flags") or []),
+        })
+    try:
+        grids = platemap.plate_grids(wells, names)
+    except ValueError as exc:
+        raise MissingKey(f"report input: {exc}") from None
+    return {
+        "settings_rows": [{"label": k.replace("_", " "), "value": _plain(v)}
+                          for k, v in (screen.get("settings") or {}).items()],
+        "solvents": solvents, "grids": grids,
+        "legend": platemap.counterion_styles(wells),
+        "wells": wells_rows, "n_samples": sum(1 for w in wells if w["kind"] == "sample"),
+        "n_controls": sum(1 for w in wells if w["kind"] != "sample"),
+        "dropped": [{"what": _combo(d), "reason": d.get("reason") or ""}
+                    for d in (screen.get("dropped") or [])],
+        "totals_rows": [{"label": k.replace("_", " "), "value": _plain(v)}
+                        for k, v in (screen.get("totals") or {}).items()],
+        "budget_rows": [{"label": k.replace("_", " "), "value": _plain(v)}
+                        for k, v in (screen.get("budget") or {}).items()]
+        if isinstance(screen.get("budget"), dict) else
+        ([{"label": "budget", "value": _plain(screen["budget"])}] if screen.get("budget") else []),
+    }
+
+
+def _combo(d: dict) -> str:
+    parts = [str(d[k]) for k in ("counterion", "stoichiometry", "solvent", "mode") if d.get(k)]
+    return " × ".join(parts) if parts else text_of(d.get("combination") or d)
+
+
+# --------------------------------------------------------------------------- all together
+def build_context(plan: dict, screen: dict | None = None, graphics: bool = True) -> dict:
+    """The whole view model of one report (see templates/plan.html.j2).
+
+    ``graphics=False`` skips the SVG drawing and charts (the Markdown report has none).
+    """
+    prov = need(plan, "provenance", "plan")
+    for key in ("tool", "version", "library_hash", "input_hash", "created"):
+        need(prov, key, "plan.provenance")
+    parent = need(plan, "parent", "plan")
+    sites = site_views(plan)
+    cands = candidate_views(need(plan, "candidates", "plan"), "plan.candidates", sites)
+    excluded = candidate_views(need(plan, "excluded", "plan"), "plan.excluded", sites)
+    th = thresholds_of(plan)
+    sol = solubility_view(plan.get("solubility"))
+    screen_ctx = screen_view(screen)
+    name = plan.get("name") or parent.get("name") or "unnamed compound"
+    chart_list = []
+    if graphics and (cands or excluded):
+        rows = [{"label": f"{c['counterion']} {c['stoichiometry']}",
+                 "delta_pka": c["delta_pka"], "uncertainty": _dpka_uncertainty(c),
+                 "shortlisted": True} for c in cands]
+        rows += [{"label": f"{c['counterion']} {c['stoichiometry']} (excluded)",
+                  "delta_pka": c["delta_pka"], "uncertainty": _dpka_uncertainty(c),
+                  "shortlisted": False} for c in excluded]
+        chart_list.append({
+            "id": "chart-dpka", "title": "ΔpKa per counterion against the category bands",
+            "svg": charts.delta_pka_chart(rows, bands_of(th), plan["inputs"].get("min_delta_pka")),
+            "note": "Filled bars: shortlisted candidates; hatched: excluded. Error bars: "
+                    "± the estimate uncertainty of the API site (measured sites: none). "
+                    f"Bands: {th.get('source', '')}."})
+    if graphics and sites:
+        chart_list.append({
+            "id": "chart-ionized", "title": "Fraction ionized against pH, per site",
+            "svg": charts.ionization_chart([{"kind": s["kind"], "pka": s["pka"],
+                                             "label": f"{s['label']} {s['kind']} "
+                                                      f"{s['drawing_label']}"}
+                                            for s in sites]),
+            "note": "Henderson–Hasselbalch for each site alone (site interactions ignored); "
+                    "base pKa = pKa of the conjugate acid. Grey lines: pH 1.2 and 6.8 "
+                    "(common dissolution media)."})
+    if graphics and sol and sol["points"]:
+        chart_list.append({
+            "id": "chart-solubility", "title": "pH–solubility profile (estimate)",
+            "svg": charts.solubility_chart(sol["points"], sol["ph_max"], sol["s0"], sol["unit"]),
+            "note": "Henderson–Hasselbalch with a solubility product (Streng et al. 1984); "
+                    "intrinsic solubility estimated, about ±1 log unit."})
+    ctx = {
+        "name": name, "plan": plan, "parent": parent,
+        "created": prov["created"], "version": prov["version"], "tool": prov["tool"],
+        "verdict": verdict_view(plan, cands),
+        "structure_svg": drawing.structure_svg(parent["smiles"], need(plan, "sites", "plan"))
+        if graphics else "",
+        "inputs": input_rows(plan, th), "parent_notes": list(parent.get("notes") or []),
+        "stripped": list(parent.get("stripped") or []),
+        "sites": sites, "candidates": cands, "excluded": excluded, "thresholds": th,
+        "breakdown_legend": _legend(cands), "charts": chart_list, "solubility": sol,
+        "screen": screen_ctx,
+        "cautions": [text_of(c) for c in need(plan, "cautions", "plan")],
+        "references": [text_of(r) for r in need(plan, "references", "plan")],
+        "provenance": [{"label": k.replace("_", " "), "value": _plain(v)} for k, v in prov.items()],
+    }
+    ctx["rationale"] = rationale.paragraphs(ctx)
+    return ctx
+
+
+def _legend(cands: list[dict]) -> list[dict]:
+    seen: dict[str, dict] = {}
+    for c in cands:
+        for p in c["parts"]:
+            seen.setdefault(p["key"], {"label": p["label"], "colour": p["colour"]})
+    return list(seen.values())
+
+
+def _dpka_uncertainty(c: dict) -> float | None:
+    """Uncertainty [pKa units] of the limiting transfer's API site; None when measured."""
+    return c["limiting_uncertainty"]

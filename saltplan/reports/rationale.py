@@ -1,0 +1,120 @@
+"""The "Rationale for the CMC file": plain prose generated from the plan's data.
+
+Each paragraph is plain text (no markup); the HTML template escapes it and the Markdown
+template neutralizes it, so user-supplied names inside it stay inert. The wording is the
+tool's own; the science it states is the ΔpKa rule (common practice, Stahl & Wermuth 2011;
+Cruz-Cabeza 2012) as recorded in the plan.
+"""
+from __future__ import annotations
+
+from typing import Any
+
+
+def _site_phrase(s: dict) -> str:
+    if s["provenance"] == "estimated":
+        how = f"estimated {s['uncertainty_text']}" if s["uncertainty_text"] != "n/a" \
+            else "estimated"
+        if s["source"]:
+            how += f" by {s['source']}"
+    elif s["provenance"] == "measured":
+        how = f"measured ({s['source'] or 'user'})"
+    else:
+        how = s["provenance"]
+    return f"a {s['group']} at atom {s['label']} ({s['kind']}, pKa {s['pka_text']}, {how})"
+
+
+def _join(items: list[str]) -> str:
+    if len(items) <= 1:
+        return "".join(items)
+    return ", ".join(items[:-1]) + " and " + items[-1]
+
+
+def _candidate_sentence(c: dict) -> str:
+    s = (f"{c['label']} at {c['stoichiometry']} (API:counterion): ΔpKa {c['delta_pka_text']}"
+         f" ({c['category_label']}; proton-transfer probability {c['probability_text']})")
+    if c["tier"] is not None:
+        s += f", acceptability tier {c['tier']}"
+    s += f", drug content {c['drug_content_text']} w/w"
+    serious = [cv["text"] for cv in c["caveats"] if cv.get("severity") in ("serious", "warning")]
+    if serious:
+        s += "; liabilities to control: " + " ".join(t.rstrip(".") + "." for t in serious)
+    else:
+        s += "; no liability flagged by the tool."
+    return s
+
+
+def paragraphs(ctx: dict[str, Any]) -> list[str]:
+    """Paragraphs of the rationale, in order: basis, rule, choices, exclusions, screen, limits."""
+    out: list[str] = []
+    name = ctx["name"]
+    parent = ctx["parent"]
+    sites = ctx["sites"]
+    th = ctx["thresholds"]
+    mw = parent.get("mw")
+    ident = f"{name} ({parent.get('formula') or 'formula n/a'}"
+    ident += f", MW {mw:.2f} g/mol)" if isinstance(mw, (int, float)) else ")"
+    if sites:
+        out.append(f"{ident} has {len(sites)} ionizable site{'s' if len(sites) != 1 else ''} "
+                   f"relevant to salt formation: {_join([_site_phrase(s) for s in sites])}.")
+    else:
+        out.append(f"{ident} has no ionizable site in the range that matters for salt "
+                   f"formation. {ctx['verdict']['text']}")
+    if ctx["verdict"]["code"] != "salt_candidates":
+        alts = ctx["verdict"]["alternatives"]
+        text = f"Verdict: {ctx['verdict']['text']}" if sites else ""
+        if alts:
+            text += (" " if text else "") + "Alternatives to consider: " + "; ".join(alts) + "."
+        if text:
+            out.append(text)
+    if ctx["candidates"] or ctx["excluded"]:
+        minimum = ctx["plan"]["inputs"].get("min_delta_pka")
+        rule = ("Counterions were shortlisted by the ΔpKa rule, ΔpKa = pKa(protonated base) − "
+                f"pKa(acid) in water: salt expected at ΔpKa ≥ {th['salt_expected']:g}, likely "
+                f"at ≥ {th['likely']:g}, mixed salt/co-crystal behaviour down to "
+                f"{th['uncertain']:g} and co-crystals below ({th.get('source', '')}).")
+        if minimum is not None:
+            rule += (f" A stoichiometry was kept only when every proton transfer reached "
+                     f"ΔpKa ≥ {minimum:g}.")
+        keys = [p["label"] for p in ctx["breakdown_legend"]]
+        if keys:
+            rule += (" Feasible candidates were ranked by a score combining "
+                     f"{_join(keys)}; the breakdown of each score is tabulated in the report.")
+        out.append(rule)
+    top = ctx["candidates"][:3]
+    if top:
+        lead = "The recommended counterions for the first screen are: " if len(top) > 1 \
+            else "The recommended counterion for the first screen is: "
+        out.append(lead + " ".join(f"({i + 1}) {_candidate_sentence(c)}"
+                                   for i, c in enumerate(top)))
+    rest = ctx["candidates"][3:]
+    if rest:
+        out.append("Also feasible and ranked lower: " + "; ".join(
+            f"{c['label']} {c['stoichiometry']} (ΔpKa {c['delta_pka_text']}, score "
+            f"{c['score_text']})" for c in rest) + ".")
+    if ctx["excluded"]:
+        out.append("Excluded from the shortlist: " + "; ".join(
+            f"{c['label']} {c['stoichiometry']}, {c['reason'] or 'infeasible'}"
+            for c in ctx["excluded"]) + ".")
+    screen = ctx["screen"]
+    if screen:
+        solvents = [s.get("name") or s.get("id") for s in screen["solvents"]]
+        text = (f"The screen uses {screen['n_samples']} sample well"
+                f"{'s' if screen['n_samples'] != 1 else ''} and {screen['n_controls']} "
+                f"control well{'s' if screen['n_controls'] != 1 else ''}")
+        if solvents:
+            text += f" across the solvents {_join([str(s) for s in solvents])}"
+        text += "; solvents were chosen with their ICH Q3C class in view."
+        if screen["dropped"]:
+            text += " Combinations left out of the screen: " + "; ".join(
+                f"{d['what']}, {d['reason']}" for d in screen["dropped"]) + "."
+        out.append(text)
+    out.append("All pKa values marked as estimates, and every ΔpKa derived from them, are "
+               "planning figures, not measurements: pKa should be confirmed by potentiometric "
+               "or UV titration, and salt formation by XRPD, DSC/TGA and NMR stoichiometry. "
+               "The final choice of salt form rests with qualified staff and defers to the "
+               "pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, Q6A and M7, and local regulation.")
+    prov = ctx["plan"]["provenance"]
+    out.append(f"Prepared with {prov['tool']} {prov['version']} (counterion library hash "
+               f"{str(prov['library_hash'])[:12]}…, input hash {str(prov['input_hash'])[:12]}…) "
+               f"on {prov['created']}.")
+    return out

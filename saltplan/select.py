@@ -220,10 +220,10 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
     th = load_thresholds(thresholds)
     plan = d.get("plan") or {}
     if dose_mg is not None:
-        dose, dose_source = float(dose_mg), "user (option)"
+        dose, dose_source = float(dose_mg), "given with the command (user)"
     else:
         dose = (plan.get("inputs") or {}).get("dose_mg")
-        dose_source = "user (plan input)" if dose else "not given"
+        dose_source = "plan input (user)" if dose else "not given"
     candidates = {(c.get("counterion"), c.get("stoichiometry")): c for c in plan.get("candidates") or []}
     order = {w["well"]: i for i, w in enumerate(d["wells"])}
 

@@ -59,6 +59,17 @@ def _caveat_text(caveat) -> str:
     return str(caveat)
 
 
+def _dropped_text(value) -> str:
+    """One dropped combination as a line: what, where, why, source."""
+    if isinstance(value, dict) and "reason" in value:
+        what = (f"{value.get('counterion')} {value.get('stoichiometry') or ''}".strip()
+                if value.get("counterion") else "free-form control")
+        where = " / ".join(str(value[k]) for k in ("solvent", "mode") if value.get(k))
+        src = f" [{value['source']}]" if value.get("source") else ""
+        return f"{what} in {where}: {value['reason']}{src}"
+    return _text(value)
+
+
 def _text(value) -> str:
     if isinstance(value, dict):
         return "; ".join(f"{k}: {v}" for k, v in value.items() if v not in (None, "", [], {}))
@@ -82,7 +93,8 @@ def screen_summary(design: dict) -> dict[str, Any]:
         "counterions": list(dict.fromkeys(w["counterion"] for w in samples if w.get("counterion"))),
         "modes": list(dict.fromkeys(str(w.get("mode")) for w in wells if w.get("mode"))),
         "solvents": solvents,
-        "dropped": [_text(x) for x in design.get("dropped") or []],
+        "dropped": [_dropped_text(x) for x in design.get("dropped") or []],
+        "cautions": [str(x) for x in design.get("cautions") or []],
         "totals": design.get("totals") or {},
         "well_table": [{"well": w.get("well"), "kind": w.get("kind", "sample"),
                         "counterion": w.get("counterion") or "", "stoichiometry": w.get("stoichiometry") or "",
@@ -95,14 +107,23 @@ def _wells_of(design: dict) -> dict[str, dict]:
     return {w["well"]: w for w in design.get("wells", [])}
 
 
+def _is_alcohol(solvent_id, design: dict) -> bool:
+    for s in design.get("solvents") or []:
+        if isinstance(s, dict) and solvent_id in (s.get("id"), s.get("name")) and "is_alcohol" in s:
+            return bool(s["is_alcohol"])
+    return bool(_ALCOHOL.search(str(solvent_id or "")))
+
+
 def _sulfonate_alcohol_wells(group_wells, design) -> tuple[str, ...]:
+    """Wells where a sulfonic acid met an alcohol (design flag, or counterion + solvent)."""
     wells = _wells_of(design)
     hits = []
     for wid in group_wells:
         w = wells.get(wid, {})
         flags = " ".join(str(f) for f in w.get("flags") or [])
-        if "sulfonate" in flags or (_SULFONATE.search(str(w.get("counterion") or ""))
-                                     and _ALCOHOL.search(str(w.get("solvent") or ""))):
+        if "sulfonate_ester" in flags or (_SULFONATE.search(str(w.get("counterion") or ""))
+                                          and (_is_alcohol(w.get("solvent"), design)
+                                               or _is_alcohol(w.get("antisolvent"), design))):
             hits.append(wid)
     return tuple(hits)
 

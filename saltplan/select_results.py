@@ -7,7 +7,8 @@ outcome. Units are part of the column name, as a suffix (one convention, checked
 ============================  ======  ==========================================
 column                        unit    meaning
 ============================  ======  ==========================================
-``well``                              SBS well id, A1–H12 (``A01`` is read as A1)
+``well``                              well id as in the design: SBS A1–H12 (``A01`` is
+                                      read as A1) or vial V01…
 ``counterion``, ``stoichiometry``, ``solvent``, ``mode``
                                       copied from the worksheet; checked against
                                       the design when present
@@ -84,10 +85,12 @@ NUMERIC_COLUMNS = {
 #: design columns copied into the template; checked against the design when present
 CONTEXT_COLUMNS = ("counterion", "stoichiometry", "solvent", "mode")
 TEXT_COLUMNS = ("form_label", "stoichiometry_found", "notes")
-COLUMNS = ("well", *CONTEXT_COLUMNS, "outcome", "form_label", *NUMERIC_COLUMNS,
-           "stoichiometry_found", "notes")
+#: every accepted column, in the order of the results template (saltplan.screen_output)
+COLUMNS = ("well", *CONTEXT_COLUMNS, "outcome", "form_label", "melting_onset_c",
+           "weight_gain_80rh_pct", "solubility_mg_ml", "saturated_ph", "stoichiometry_found",
+           "solvent_content_pct", "notes")
 #: observation fields (all but ``well`` and the design context)
-OBSERVATION_COLUMNS = ("outcome", "form_label", *NUMERIC_COLUMNS, "stoichiometry_found", "notes")
+OBSERVATION_COLUMNS = tuple(c for c in COLUMNS if c not in ("well", *CONTEXT_COLUMNS))
 
 #: a header naming a numeric quantity without its unit suffix -> the expected column
 _UNITLESS = {
@@ -106,7 +109,7 @@ _NUMERIC_BASES = {
 }
 #: what a control well's counterion cell may say (compared after :func:`_token`)
 _CONTROL_TOKENS = ("", "none", "control", "free form", "no counterion", "n/a", "na")
-_WELL_RE = re.compile(r"^([A-Ha-h])0*([1-9]|1[0-2])$")
+_ANY_ID_RE = re.compile(r"^([A-Za-z]{1,3})0*(\d{1,4})$")
 _RATIO_RE = re.compile(r"^\s*(\d+(?:\.\d+)?)\s*:\s*(\d+(?:\.\d+)?)\s*$")
 
 
@@ -179,9 +182,11 @@ def design_dict(design) -> dict[str, Any]:
     return design
 
 
-def normalize_well(text: str) -> str | None:
-    """``"a01"`` → ``"A1"``; None when ``text`` is not a 96-well id (SBS A1–H12)."""
-    m = _WELL_RE.match(text.strip())
+def well_key(text: str) -> str | None:
+    """Comparison key of a well or vial id: letters upper-cased, leading zeros dropped
+    (``"a01"`` and ``"A1"`` → ``"A1"``; ``"v3"`` and ``"V03"`` → ``"V3"``); None if the
+    text is not an id of that shape."""
+    m = _ANY_ID_RE.match(text.strip())
     if not m:
         return None
     return f"{m.group(1).upper()}{int(m.group(2))}"
@@ -373,7 +378,7 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
     sha = hashlib.sha256(raw).hexdigest()
     text = _decode(raw, origin)
     design = design_dict(design)
-    wells = {w["well"]: w for w in design["wells"]}
+    wells = {well_key(str(w["well"])) or str(w["well"]): w for w in design["wells"]}
     delimiter = _delimiter(text)
     lines = _Lines(text)
     reader = csv.reader(lines, delimiter=delimiter, strict=True)
@@ -381,7 +386,6 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
     header_row = 0
     seen: dict[str, int] = {}
     found: dict[str, Observation] = {}
-    blank: set[str] = set()
     try:
         for cells in reader:
             row = lines.index
@@ -395,9 +399,7 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
                                    file=origin, row=row)
             record = dict(zip(header, (c for c in cells)))
             obs = _row(record, wells, seen, row, origin, delimiter != ",")
-            if obs is None:
-                blank.add(normalize_well(record["well"]))
-            else:
+            if obs is not None:
                 found[obs.well] = obs
     except csv.Error as exc:
         raise ResultsError(f"not readable as CSV: {exc}", file=origin, row=lines.index) from None
@@ -418,17 +420,19 @@ def _row(record: dict[str, str], wells: dict, seen: dict[str, int], row: int, or
     given = (record.get("well") or "").strip()
     if not given:
         raise ResultsError("well id missing", file=origin, row=row, field="well")
-    well_id = normalize_well(given)
+    key = well_key(given)
+    if key is None:
+        raise ResultsError(f"'{given}' is not a well id (A1–H12 on a 96-well plate, V01… for vials)",
+                           file=origin, row=row, field="well")
+    well_id = wells.get(key, {}).get("well")
     if well_id is None:
-        raise ResultsError(f"'{given}' is not a 96-well id (A1–H12)", file=origin, row=row, field="well")
-    if well_id not in wells:
-        raise ResultsError(f"unknown well {well_id}: not in the screen design", file=origin, row=row,
+        raise ResultsError(f"unknown well {given}: not in the screen design", file=origin, row=row,
                            field="well")
     if well_id in seen:
         raise ResultsError(f"duplicate well {well_id} (first on row {seen[well_id]})", file=origin,
                            row=row, field="well")
     seen[well_id] = row
-    well = wells[well_id]
+    well = wells[key]
     for column in CONTEXT_COLUMNS:
         if column in record:
             _check_context(column, record[column] or "", well, origin, row)

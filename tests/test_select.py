@@ -175,9 +175,17 @@ def test_unknown_well(design):
     assert err.file == "r.csv"
 
 
-def test_not_a_well_id(design):
-    err = _error(_csv("Z13,crystalline,,,,,,,,"), design)  # SBS 96-well: A–H, 1–12
-    assert "not a 96-well id" in err.message and err.field == "well"
+@pytest.mark.parametrize("text, words", [("Z13", "unknown well Z13"), ("A-1", "not a well id"),
+                                         ("12", "not a well id"), ("", "well id missing")])
+def test_bad_well_ids(design, text, words):
+    err = _error(_csv(f"{text},crystalline,,,,,,,,"), design)  # SBS 96-well: A–H, 1–12
+    assert words in err.message and err.field == "well"
+
+
+def test_vial_ids(design):
+    design["wells"][0]["well"] = "V01"  # vial scale ids (saltplan.screen_layout)
+    res = parse_results(_csv("v1,crystalline,A,,,,,,,"), design)
+    assert res.observations[0].well == "V01"
 
 
 def test_duplicate_well_also_with_leading_zero(design):
@@ -462,3 +470,187 @@ def test_load_design(tmp_path, design):
     from saltplan.errors import InputFileError
     with pytest.raises(InputFileError):
         load_design(tmp_path / "missing")
+
+
+# --------------------------------------------------------------------------- decision record
+NASTY = "[click](http://x.example) <b>bold</b> <script>alert(1)</script> www.x.org a@b.example"
+
+
+def _nasty_selection(design):
+    text = _csv(f'A1,crystalline,A,180,0.5,12,3.0,1:1,0.2,"{NASTY}"', "H1,crystalline,FF-I,,,,,,,")
+    return evaluate_results(design, parse_results(text, design))
+
+
+def test_html_is_self_contained_and_escaped(design):
+    from saltplan.select_report import render_decision_html
+
+    html = render_decision_html(_nasty_selection(design))
+    assert html.startswith("<!DOCTYPE html>")
+    for forbidden in ("<script", "<link", "src=", "href=", "url(", "@import", "http://", "https://"):
+        assert forbidden not in html.replace("http://x.example", ""), forbidden
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html and "<b>bold</b>" not in html
+    assert "@media print" in html
+
+
+def test_markdown_neutralizes_user_text(design):
+    from saltplan.select_report import md_escape, render_decision_markdown
+
+    import re
+
+    md = render_decision_markdown(_nasty_selection(design))
+    assert not re.search(r"(?<!\\)\]\(", md)  # no unescaped "](": no link
+    assert not re.search(r"(?<!\\)<", md)  # no unescaped "<": no HTML, no autolink
+    assert "http://" not in md and "www.x" not in md and "a@b" not in md
+    assert md_escape(NASTY) in md
+    # CommonMark 0.31 §2.4: a backslash before ASCII punctuation makes it literal
+    assert md_escape("1. first") == "1\\. first" and md_escape("- item") == "\\- item"
+    assert md_escape("182.5") == "182.5"
+
+
+def test_record_labels_invented_data(design, fixtures_dir):
+    from saltplan.select_report import render_decision_html, render_decision_markdown
+
+    sel = evaluate_results(design, fixtures_dir / "results_invented_marker.csv")
+    assert "INVENTED DATA" in render_decision_html(sel)
+    assert "INVENTED DATA" in render_decision_markdown(sel).split("## 1.")[0]
+    plain = evaluate_results(design, fixtures_dir / "results_good.csv")
+    assert "INVENTED DATA" not in render_decision_html(plain)
+
+
+def test_record_joins_plan_design_observations(design, good):
+    from saltplan.select_report import render_decision_markdown
+
+    md = render_decision_markdown(evaluate_results(design, good))
+    for part in ("TST-001", "tosylate", "sulfonate + alcohol", "needles", "Not reported** (1): H2",
+                 "ICH M7", "Ph. Eur. 5.11", "ICH Q6A", "USP–NF", "design hash", "results hash"):
+        assert part in md, part
+
+
+def test_write_decision_record_all_or_nothing(design, good, tmp_path, monkeypatch):
+    import saltplan.select_report as rep
+
+    sel = evaluate_results(design, good)
+    written = rep.write_decision_record(sel, tmp_path / "rec")
+    assert sorted(p.name for p in written) == ["decision.html", "decision.md", "selection.json"]
+    assert json.loads((tmp_path / "rec" / "selection.json").read_text()) == json.loads(
+        rep.render_decision_json(sel))
+
+    def boom(_):
+        raise RuntimeError("render failed")
+
+    monkeypatch.setattr(rep, "render_decision_markdown", boom)
+    with pytest.raises(RuntimeError):
+        rep.write_decision_record(sel, tmp_path / "rec2")
+    assert not (tmp_path / "rec2").exists()
+
+
+def test_record_bytes_deterministic(design, good, monkeypatch):
+    from saltplan.select_report import render_decision_html, render_decision_markdown
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
+    a, b = evaluate_results(design, good), evaluate_results(fixture_design(), good)
+    assert render_decision_html(a) == render_decision_html(b)
+    assert render_decision_markdown(a) == render_decision_markdown(b)
+
+
+def test_record_renders_no_lead(design, fixtures_dir):
+    from saltplan.select_report import render_decision_html, render_decision_markdown
+
+    sel = evaluate_results(design, fixtures_dir / "results_no_crystals.csv")
+    assert "No lead" in render_decision_html(sel) and "No lead" in render_decision_markdown(sel)
+
+
+# --------------------------------------------------------------------------- CLI
+@pytest.fixture
+def design_dir(tmp_path, design):
+    folder = tmp_path / "screen"
+    folder.mkdir()
+    (folder / "design.json").write_text(json.dumps(design), encoding="utf-8")
+    return folder
+
+
+def test_cli_select_writes_the_record(cli, design_dir, good, tmp_path):
+    out = tmp_path / "decision"
+    result = cli("select", design_dir, good, "--out", out)
+    assert result.exit_code == 0, result.output
+    assert "Lead: mesylate 1:1 form A" in result.stdout
+    assert sorted(p.name for p in out.iterdir()) == ["decision.html", "decision.md", "selection.json"]
+
+
+def test_cli_select_json(cli, design_dir, good, tmp_path):
+    result = cli("select", design_dir, good, "--out", tmp_path / "o", "--json")
+    assert result.exit_code == 0
+    data = json.loads(result.stdout)
+    assert data["lead"] == "mesylate/A" and data["backup"] == "fumarate/B"
+
+
+def test_cli_select_refuses_bad_results_without_output(cli, design_dir, tmp_path):
+    bad = tmp_path / "bad.csv"
+    bad.write_text(_csv("A1,crystalline,A,999,,,,,,"))
+    out = tmp_path / "never"
+    result = cli("select", design_dir, bad, "--out", out)
+    assert result.exit_code == 1
+    assert result.stdout == ""
+    line = result.stderr.strip()
+    assert len(line.splitlines()) == 1 and "row 2" in line and "melting_onset_c" in line
+    assert not out.exists()
+
+
+def test_cli_select_bad_thresholds_and_usage(cli, design_dir, good, tmp_path):
+    th = tmp_path / "t.yaml"
+    th.write_text("thresholds:\n  nonsense: 1\n")
+    result = cli("select", design_dir, good, "--out", tmp_path / "o", "--thresholds", th)
+    assert result.exit_code == 1 and "unknown threshold" in result.stderr
+    assert not (tmp_path / "o").exists()
+    result = cli("select", design_dir, good)  # --out missing: usage error
+    assert result.exit_code == 2
+    result = cli("select", tmp_path / "nothing", good, "--out", tmp_path / "o")
+    assert result.exit_code == 2
+    empty = tmp_path / "empty"
+    empty.mkdir()
+    result = cli("select", empty, good, "--out", tmp_path / "o")
+    assert result.exit_code == 1 and "design.json not found" in result.stderr
+
+
+def test_cli_dose_option(cli, design_dir, good, tmp_path):
+    # ICH M9: 10000 mg / 250 mL = 40 mg/mL; every form's solubility (≤ 30 mg/mL) now fails
+    result = cli("select", design_dir, good, "--out", tmp_path / "o", "--json", "--dose-mg", 10000)
+    assert result.exit_code == 0
+    data = json.loads(result.stdout)
+    sol = [e for g in data["shortlist"] for e in g["evidence"] if e["criterion"] == "solubility"]
+    assert sol and all(e["status"] == "fail" and e["threshold"] == 40.0 for e in sol)
+
+
+# --------------------------------------------------------------------------- demo results
+def test_demo_results_are_labelled_deterministic_and_valid(design):
+    from saltplan.demo_results import HEADER_LINE, make_demo_results
+
+    text = make_demo_results(design)
+    assert text.splitlines()[0] == HEADER_LINE == "# INVENTED DATA for the saltplan demo — not measurements"
+    assert make_demo_results(fixture_design()) == text
+    res = parse_results(text, design)  # passes the same validation as a user's file
+    assert res.invented
+    assert len(res.observations) + len(res.not_reported) == len(design["wells"])
+    assert evaluate_results(design, res).invented_data
+
+
+def test_real_design_round_trip(tmp_path):
+    """A design from saltplan.screen: template → (invented) results → selection → record."""
+    from saltplan.demo_results import make_demo_results
+    from saltplan.screen_output import screen_structure
+    from saltplan.select_report import select_and_record
+
+    try:
+        design, _ = screen_structure("CN1CCC(CC1)Oc1ccc(cc1)C(=O)NC1CC1", 400,
+                                     out_dir=tmp_path / "s", name="TST-002", dose_mg=50)
+    except ImportError as exc:  # the planner is being written in parallel
+        pytest.skip(f"planner not available yet: {exc}")
+    template = (tmp_path / "s" / "results-template.csv").read_text()
+    blank = parse_results(template, design)  # the untouched template is valid: nothing reported
+    assert blank.observations == () and len(blank.not_reported) == len(design.wells)
+    results = tmp_path / "r.csv"
+    results.write_text(make_demo_results(design))
+    sel, written = select_and_record(tmp_path / "s", results, tmp_path / "d")
+    assert len(written) == 3 and sel.invented_data
+    for g in sel.shortlist:
+        assert all(e.wells for e in g.evidence)

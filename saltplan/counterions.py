@@ -286,11 +286,9 @@ def build_library(files: Sequence[tuple[Path, str, bool]]) -> Library:
     entries: dict[str, tuple[Counterion, dict]] = {}
     overrides: list[Override] = []
     for path, label, is_user in files:
-        data = load_yaml_path(path, error=CounterionLibraryError)
-        family, raw_entries = validate_file(data, str(path))
+        family, parsed = _parse_file(str(path), *_stamp(path))
         seen_here: set[str] = set()
-        for index, raw in enumerate(raw_entries):
-            values, canonical = validate_entry(raw, file=str(path), index=index)
+        for values, canonical in parsed:
             cid = values["id"]
             if cid in seen_here:
                 raise CounterionLibraryError(f"duplicate id '{cid}' (already defined above "
@@ -305,7 +303,7 @@ def build_library(files: Sequence[tuple[Path, str, bool]]) -> Library:
                         "library (--library) may override an entry", file=str(path),
                         entry=cid, field="id")
                 overrides.append(Override(cid, previous, label))
-            entries[cid] = (Counterion(family=family, source=label, **values), canonical)
+            entries[cid] = (Counterion(family=family, source=label, **values), dict(canonical))
     if not entries:
         raise CounterionLibraryError("the counterion library is empty")
     canonical_all = [entries[cid][1] for cid in sorted(entries)]
@@ -313,6 +311,15 @@ def build_library(files: Sequence[tuple[Path, str, bool]]) -> Library:
                                     separators=(",", ":")))
     return Library([c for c, _ in entries.values()], hash=f"sha256:{digest}",
                    sources=[label for _, label, _ in files], overrides=overrides)
+
+
+@functools.lru_cache(maxsize=256)
+def _parse_file(path: str, _mtime_ns: int, _size: int) -> tuple[str, tuple]:
+    """Validate one file (cached per path and modification stamp): (family, entries)."""
+    data = load_yaml_path(path, error=CounterionLibraryError)
+    family, raw_entries = validate_file(data, path)
+    return family, tuple(validate_entry(raw, file=path, index=i)
+                         for i, raw in enumerate(raw_entries))
 
 
 def check_counterions(paths=None) -> LibraryCheck:

@@ -139,6 +139,7 @@ class Transfer:
     api_pka: float
     api_pka_provenance: str       # "measured" | "estimated"
     api_pka_source: str
+    api_pka_uncertainty: float    # pKa units (0 when unknown)
     counterion_pka: float
     counterion_pka_index: int     # index in the counterion's ascending pKa tuple
     counterion_pka_source: str
@@ -151,6 +152,7 @@ class Transfer:
             "api_pka": round(self.api_pka, 2),
             "api_pka_provenance": self.api_pka_provenance,
             "api_pka_source": self.api_pka_source,
+            "api_pka_uncertainty": round(self.api_pka_uncertainty, 2),
             "counterion_pka": round(self.counterion_pka, 2),
             "counterion_pka_index": self.counterion_pka_index,
             "counterion_pka_source": self.counterion_pka_source,
@@ -200,6 +202,13 @@ class Candidate:
     ph_max: float | None = None
     ph_max_basis: str | None = None
     reason: str | None = None     # why excluded (infeasible), None when feasible
+
+    @property
+    def limiting_transfer(self) -> Transfer | None:
+        """The proton transfer with the smallest ΔpKa (ties: lowest atom index)."""
+        if not self.transfers:
+            return None
+        return min(self.transfers, key=lambda t: (t.delta_pka, t.api_atom))
 
     @property
     def sort_key(self):
@@ -287,23 +296,37 @@ def pka_source(ion, index: int | None) -> str:
 
 
 @functools.lru_cache(maxsize=512)
-def _metal_of(smiles: str) -> tuple[str, int] | None:
-    """(symbol, charge) of the metal cation in a counterion SMILES, or None for organic/inorganic acids."""
+def _cation_of(smiles: str) -> tuple[str, int] | None:
+    """(cation SMILES, charge) of a hydroxide-supplied base or a bare metal ion, else None.
+
+    Metal hydroxides and quaternary hydroxides (``[Na+].[OH-]``, ``[Ca+2].[OH-].[OH-]``,
+    ``C[N+](C)(C)CCO.[OH-]``) give salts of the cation; the hydroxide leaves as water.
+    Organic amines (``NCCO``) and ammonia are not cations here: the proton moves to them.
+    """
     from rdkit import Chem
 
-    mol = Chem.MolFromSmiles(smiles)
+    frags = smiles.split(".")
+    others = [f for f in frags if f.replace(" ", "") not in ("[OH-]", "O[H-]")]
+    if len(set(others)) != 1:
+        return None
+    cation = others[0]
+    mol = Chem.MolFromSmiles(cation)
     if mol is None:
         return None
-    for atom in mol.GetAtoms():
-        sym = atom.GetSymbol()
+    charge = Chem.GetFormalCharge(mol)
+    if len(others) < len(frags) and charge > 0:
+        return cation, charge
+    if mol.GetNumAtoms() == 1:
+        sym = mol.GetAtomWithIdx(0).GetSymbol()
         if sym in _METAL_CHARGE:
-            charge = atom.GetFormalCharge() or _METAL_CHARGE[sym]
-            return sym, abs(charge)
+            charge = charge or _METAL_CHARGE[sym]
+            return f"[{sym}+{charge if charge > 1 else ''}]", charge
     return None
 
 
-def is_metal(ion) -> bool:
-    return _metal_of(ion.smiles) is not None
+def is_cation_base(ion) -> bool:
+    """True for metal and quaternary hydroxides: their salts hold the bare cation."""
+    return _cation_of(ion.smiles) is not None
 
 
 # --------------------------------------------------------------------------- stoichiometry
@@ -378,11 +401,11 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
         further = list(range(first + 1, len(pkas)))
     else:
         further = list(range(first - 1, -1, -1))
-    metal = _metal_of(ion.smiles)
+    cation = _cation_of(ion.smiles)
     options: list[Option] = []
 
-    if metal is not None and metal[1] >= 2:
-        valence = metal[1]
+    if cation is not None and cation[1] >= 2:
+        valence = cation[1]
         # one metal ion takes `valence` protons; from `valence` API molecules ...
         idx = [first] + further[: valence - 1]
         idx += [idx[-1]] * (valence - len(idx))
@@ -398,7 +421,7 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
 
     options.append(Option("1:1", 1, 1, ((s1, first),), (dp(s1, first),)))
     n_protons = getattr(ion, "n_protons", None)
-    polyprotic = [first] + (further if metal is None else [])
+    polyprotic = [first] + (further if cation is None else [])
     if n_protons:
         polyprotic = polyprotic[: int(n_protons)]
     # k API per counterion: the counterion's k-th pKa must also qualify against the API site
@@ -409,7 +432,7 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
             break
         options.append(Option(f"{k}:1", k, 1, tuple((s1, i) for i in idx), deltas))
     # bis-salt: the API's second site with a second (monoprotic) counterion
-    monoprotic = len(polyprotic) == 1 or (metal is not None and metal[1] == 1)
+    monoprotic = len(polyprotic) == 1 or (cation is not None and cation[1] == 1)
     if s2 is not None and monoprotic:
         pairs = ((s1, first), (s2, first))
         deltas = tuple(dp(s, i) for s, i in pairs)
@@ -482,36 +505,33 @@ def compose(parent_smiles: str, ion, option: Option) -> Composition:
     """Formula, salt MW and drug content of one stoichiometry.
 
     Acids and organic bases: the salt holds the same atoms as API + counterion (the proton
-    moves). Metal cations: API minus the transferred protons plus the metal ion (the
-    hydroxide leaves as water). Formula and MW come from RDKit on the combined SMILES of
+    moves). Metal and quaternary hydroxides: API minus the transferred protons plus the
+    cation (the hydroxide leaves as water). Formula and MW come from RDKit on the combined SMILES of
     the salt species, so they are exact to RDKit's (IUPAC) atomic weights.
 
     Drug content = n_API·MW(API)/MW(salt)·100 [% w/w free form].
     """
     api_formula, api_mw = _mol_info(parent_smiles)
-    metal = _metal_of(ion.smiles)
+    cation = _cation_of(ion.smiles)
     n_api, n_ci = option.n_api, option.n_counterion
-    if metal is None:
+    if cation is None:
         ion_formula, ion_mw = _mol_info(ion.smiles)
         salt_smiles = ".".join([parent_smiles] * n_api + [ion.smiles] * n_ci)
         formula, salt_mw = _mol_info(salt_smiles)
         display = _display(n_api, api_formula, n_ci, ion_formula)
         counterion_mass = n_ci * ion_mw / n_api
     else:
-        from rdkit import Chem
-
-        sym, charge = metal
+        cation_smiles, _charge = cation
         # protons leave API copy by copy: a 2:1 calcium salt takes one from each of two APIs
         per_copy: list[list[int]] = [[] for _ in range(n_api)]
         for k, (site, _) in enumerate(option.pairs):
             per_copy[k % n_api].append(site.atom)
         anions = [_deprotonated(parent_smiles, tuple(atoms)) for atoms in per_copy]
-        cation = f"[{sym}+{charge if charge > 1 else ''}]"
-        salt_smiles = ".".join(anions + [cation] * n_ci)
+        salt_smiles = ".".join(anions + [cation_smiles] * n_ci)
         formula, salt_mw = _mol_info(salt_smiles)
-        anion_formula = _mol_info(anions[0])[0]
-        display = _display(n_api, anion_formula, n_ci, _mol_info(cation)[0])
-        counterion_mass = n_ci * Chem.GetPeriodicTable().GetAtomicWeight(sym) / n_api
+        cation_formula, cation_mw = _mol_info(cation_smiles)
+        display = _display(n_api, _mol_info(anions[0])[0], n_ci, cation_formula)
+        counterion_mass = n_ci * cation_mw / n_api
     return Composition(n_api, n_ci, salt_smiles, formula, display, salt_mw,
                        100.0 * n_api * api_mw / salt_mw, counterion_mass)
 
@@ -548,6 +568,7 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
                 Transfer(api_atom=site.atom, api_kind=site.kind, api_pka=float(site.pka),
                          api_pka_provenance=str(getattr(site, "provenance", "estimated")),
                          api_pka_source=str(getattr(site, "source", "")),
+                         api_pka_uncertainty=float(getattr(site, "uncertainty", 0.0) or 0.0),
                          counterion_pka=(salt_pka(ion) if i == salt_pka_index(ion)
                                          else counterion_pkas(ion)[i]),
                          counterion_pka_index=i, counterion_pka_source=pka_source(ion, i),

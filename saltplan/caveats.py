@@ -18,7 +18,7 @@ import functools
 from dataclasses import dataclass
 from typing import Any, Mapping
 
-from .assessment import Candidate, Caveat, is_metal, parse_stoichiometry
+from .assessment import Candidate, Caveat, is_cation_base, parse_stoichiometry
 
 STAHL = "Stahl & Wermuth, Handbook of Pharmaceutical Salts, 2nd ed. 2011 (common practice)"
 SERAJUDDIN = "Serajuddin, Adv. Drug Deliv. Rev. 2007, 59, 603 (from memory)"
@@ -261,8 +261,8 @@ def candidate_caveats(candidate: Candidate, ion, features: ApiFeatures, *,
 def daily_counterion_mg(candidate: Candidate, dose_mg: float, api_mw: float) -> float:
     """Counterion delivered per day [mg] at ``dose_mg`` of free form per day.
 
-    mg/day = dose / MW(API) × (counterion moiety mass per mol API); for metal salts the
-    metal ion, otherwise the whole acid or base.
+    mg/day = dose / MW(API) × (counterion moiety mass per mol API); for metal and
+    quaternary hydroxides the cation, otherwise the whole acid or base.
     """
     return dose_mg / api_mw * candidate.counterion_mass_per_api
 
@@ -277,7 +277,7 @@ def _exposure_caveats(candidate, ion, dose_mg, api_mw, settings, src):
     n_api, n_ci = parse_stoichiometry(candidate.stoichiometry)
     unit_mass = candidate.counterion_mass_per_api * n_api / n_ci  # g/mol of one counterion unit
     mmol = mg / unit_mass if unit_mass > 0 else 0.0
-    what = "cation" if is_metal(ion) else "counterion"
+    what = "cation" if is_cation_base(ion) else "counterion"
     text = (f"At {dose_mg:g} mg/day of free form the {candidate.stoichiometry} {ion.id} salt "
             f"delivers about {mg:.3g} mg/day of {what} ({mmol:.3g} mmol/day).")
     if note:

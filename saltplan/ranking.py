@@ -2,8 +2,9 @@
 
 score = Σ weight·term, each term in 0..1, bonuses added and penalties subtracted:
 
-* ``delta_pka_margin`` — clip(ΔpKa / saturation, 0, 1) (saturates near ΔpKa 4, above which
-  crystal structures are almost only salts; Cruz-Cabeza 2012);
+* ``delta_pka_margin`` — clip((ΔpKa − k·σ) / saturation, 0, 1), σ the uncertainty of the
+  API site's pKa (saturates near ΔpKa 4, above which crystal structures are almost only
+  salts; Cruz-Cabeza 2012);
 * ``tier`` — acceptability tier of the counterion (Stahl & Wermuth 2011, as in the library);
 * ``precedence`` — how often the counterion appears in marketed salts (common practice);
 * ``mass`` — (1 − drug content) scaled by the daily dose (matters more at high dose);
@@ -11,7 +12,8 @@ score = Σ weight·term, each term in 0..1, bonuses added and penalties subtract
   triggers it (see :mod:`saltplan.caveats`);
 * ``hygroscopicity`` — tendency of the counterion's salts to take up water;
 * ``disproportionation`` — pHmax against a typical formulation microenvironment pH;
-* ``stoichiometry`` — a stoichiometry the library does not list for that counterion.
+* ``stoichiometry`` — a stoichiometry the library does not list for that counterion, or a
+  second-choice one (2:1, 1:2) next to a feasible 1:1 of the same counterion.
 
 Weights and thresholds live in ``saltplan/data/ranking_weights.yaml``; a user file given to
 :func:`load_ranking_config` overrides any of them. Ties break deterministically: score
@@ -34,7 +36,7 @@ BREAKDOWN_KEYS = ("delta_pka_margin", "tier", "precedence", "mass", "liabilities
                   "hygroscopicity", "disproportionation", "stoichiometry")
 #: sections whose keys are open (new flags, counterion ids, tiers may be added)
 _OPEN_SECTIONS = {"liability_penalties", "exposure_mg_day", "tier_scores",
-                  "hygroscopicity_scores"}
+                  "hygroscopicity_scores", "stoichiometry_scores"}
 
 
 @dataclass(frozen=True)
@@ -174,21 +176,27 @@ def disproportionation_risk(ph_max: float | None, counterion_role: str,
 
 def precedence_score(counterion_id: str, cfg: RankingConfig) -> float:
     p = cfg.data["precedence"]
-    if counterion_id in p["frequent"]:
-        return float(p["scores"]["frequent"])
-    if counterion_id in p["occasional"]:
-        return float(p["scores"]["occasional"])
+    for level in ("very_frequent", "frequent", "occasional"):
+        if counterion_id in p[level]:
+            return float(p["scores"][level])
     return float(p["scores"]["other"])
 
 
 def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
-                    triggered_flags: Iterable[str] = (),
+                    triggered_flags: Iterable[str] = (), alternative: bool = False,
                     cfg: RankingConfig | None = None) -> tuple[float, dict[str, float]]:
-    """Score and signed breakdown (weight × term; penalties negative) of one candidate."""
+    """Score and signed breakdown (weight × term; penalties negative) of one candidate.
+
+    ``alternative`` marks a non-1:1 stoichiometry of a counterion whose 1:1 salt is also
+    feasible (a second-choice experiment).
+    """
     cfg = cfg or load_ranking_config()
     w = cfg.data["weights"]
     triggered = set(triggered_flags)
-    margin = _clip01(candidate.delta_pka / cfg.data["margin"]["saturation"])
+    m = cfg.data["margin"]
+    lim = candidate.limiting_transfer
+    sigma = lim.api_pka_uncertainty if lim is not None else 0.0
+    margin = _clip01((candidate.delta_pka - m["uncertainty_factor"] * sigma) / m["saturation"])
     tiers = cfg.data["tier_scores"]
     tier = getattr(ion, "tier", None)
     tier_term = float(tiers.get(tier, tiers.get(str(tier), 0.0))) if tier is not None else 0.0
@@ -202,7 +210,13 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
                                hyg_scores.get("unknown", 0.0)))
     dispro = disproportionation_risk(candidate.ph_max, ion.role, cfg)
     listed = tuple(getattr(ion, "stoichiometries", ()) or ())
-    unlisted = 1.0 if listed and candidate.stoichiometry not in listed else 0.0
+    st = cfg.data["stoichiometry_scores"]
+    if listed and candidate.stoichiometry not in listed:
+        stoich = float(st["unlisted"])
+    elif alternative and candidate.stoichiometry != "1:1":
+        stoich = float(st["alternative"])
+    else:
+        stoich = 0.0
     breakdown = {
         "delta_pka_margin": w["delta_pka_margin"] * margin,
         "tier": w["tier"] * tier_term,
@@ -211,7 +225,7 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
         "liabilities": -w["liabilities"] * liab,
         "hygroscopicity": -w["hygroscopicity"] * hyg,
         "disproportionation": -w["disproportionation"] * dispro,
-        "stoichiometry": -w["stoichiometry"] * unlisted,
+        "stoichiometry": -w["stoichiometry"] * stoich,
     }
     breakdown = {k: (0.0 if v == 0 else v) for k, v in breakdown.items()}  # no "-0.0"
     return sum(breakdown.values()), breakdown

@@ -134,16 +134,22 @@ class SolubilitySketch:
         return None
 
     def to_dict(self) -> dict[str, Any]:
+        primary = self.profile_sites[0] if self.profile_sites else None
+        primary_ph_max = (None if primary is None else
+                          self.ph_max_for(primary[1], primary[0]))
         return {
+            "s0_mg_ml": _sig(self.intrinsic.mg_ml),
+            "s0_method": self.intrinsic.method,
+            "s0_provenance": self.intrinsic.provenance,
             "intrinsic": self.intrinsic.to_dict(),
-            "salt_solubility": {"mg_ml": _sig(self.salt_mg_ml), "basis": self.salt_basis,
-                                "note": "expressed as free form; 'assumed' is a planning "
-                                        "default, not a measurement"},
-            "ph_max": [p.to_dict() for p in self.ph_max],
+            "salt_solubility_mg_ml": _sig(self.salt_mg_ml),
+            "salt_solubility_basis": self.salt_basis,
+            "ph_max": None if primary_ph_max is None else round(primary_ph_max, 2),
+            "ph_max_sites": [p.to_dict() for p in self.ph_max],
             "ph_max_source": PHMAX_SOURCE,
             "profile_sites": [{"kind": k, "atom": a, "pka": round(p, 2)}
                               for k, a, p in self.profile_sites],
-            "profile": [{"ph": ph, "free_form_mg_ml": _sig(f), "mg_ml": _sig(s)}
+            "profile": [{"ph": ph, "s_mg_ml": _sig(s), "free_form_mg_ml": _sig(f)}
                         for ph, f, s in self.profile],
             "notes": list(self.notes),
         }

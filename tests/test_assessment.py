@@ -260,7 +260,9 @@ def test_triggered_flag_penalized_more():
     c = A.assess(DIPHENHYDRAMINE, [site(1, "base", 9.0)], [mal])[0]
     plain = R.score_candidate(c, mal, dose_mg=None)[1]["liabilities"]
     trig = R.score_candidate(c, mal, dose_mg=None, triggered_flags=["michael_acceptor"])[1]["liabilities"]
-    assert trig == pytest.approx(2.5 * plain) and trig < plain < 0
+    factor = R.load_ranking_config().data["api_trigger_factor"]
+    assert factor > 1
+    assert trig == pytest.approx(factor * plain) and trig < plain < 0
 
 
 def test_rank_tie_breaks_are_deterministic():
@@ -395,4 +397,5 @@ def test_sketch_labels_assumed_salt_solubility():
     assert sk2.salt_basis == "user"
     assert sk2.ph_max_for(1, "base") == pytest.approx(9.0 + math.log10(0.1 / 50.0))
     d = sk2.to_dict()
-    assert d["intrinsic"]["provenance"] == "user" and len(d["profile"]) == 19
+    assert d["s0_provenance"] == "user" and d["salt_solubility_basis"] == "user"
+    assert len(d["profile"]) == 19 and d["profile"][0]["ph"] == 1.0

@@ -27,9 +27,8 @@ from typing import Any, Mapping
 
 from ._data import sha256_text
 from ._provenance import provenance
-from .select_criteria import (HYGROSCOPICITY_CLASSES, HYGROSCOPICITY_TEXT, ICH_M9, PH_EUR_511,
-                              Thresholds, hygroscopicity_class, load_thresholds,
-                              required_solubility_mg_ml)
+from .select_criteria import (HYGROSCOPICITY_CLASSES, HYGROSCOPICITY_TEXT, Thresholds,
+                              hygroscopicity_class, load_thresholds, required_solubility_mg_ml)
 from .select_context import cautions, next_steps, open_questions, plan_summary, screen_summary
 from .select_results import (OUTCOMES, Observation, Results, design_dict, parse_ratio,
                              read_results)
@@ -227,7 +226,7 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
     candidates = {(c.get("counterion"), c.get("stoichiometry")): c for c in plan.get("candidates") or []}
     order = {w["well"]: i for i, w in enumerate(d["wells"])}
 
-    groups = _groups(results.observations, candidates, th, dose, order)
+    groups = _groups(results.observations, candidates, th, dose, dose_source, order)
     eligible = sorted((g for g in groups if g.eligible), key=_rank_key)
     others = sorted((g for g in groups if not g.eligible),
                     key=lambda g: (g.counterion, g.form_label or "", g.wells[0]))
@@ -269,7 +268,7 @@ def _key(label: str) -> str:
     return " ".join(label.lower().replace("_", " ").replace("-", " ").split())
 
 
-def _groups(observations, candidates, th: Thresholds, dose, order) -> list[FormGroup]:
+def _groups(observations, candidates, th: Thresholds, dose, dose_src, order) -> list[FormGroup]:
     controls = _free_form_labels(observations)
     buckets: dict[tuple[str, str], list[Observation]] = {}
     for o in observations:
@@ -280,7 +279,7 @@ def _groups(observations, candidates, th: Thresholds, dose, order) -> list[FormG
     out = []
     for (counterion, _), wells in sorted(buckets.items(), key=lambda kv: (kv[0][0], order[kv[1][0].well])):
         wells = sorted(wells, key=lambda o: order[o.well])
-        out.append(_group(counterion, wells, controls, candidates, th, dose))
+        out.append(_group(counterion, wells, controls, candidates, th, dose, dose_src))
     return out
 
 
@@ -289,7 +288,7 @@ def _ratio(text: str) -> float:
     return m / n  # counterion per API
 
 
-def _group(counterion, obs, controls, candidates, th: Thresholds, dose) -> FormGroup:
+def _group(counterion, obs, controls, candidates, th: Thresholds, dose, dose_src) -> FormGroup:
     ids = tuple(o.well for o in obs)
     label = obs[0].form_label
     intended = tuple(dict.fromkeys(o.stoichiometry for o in obs if o.stoichiometry))
@@ -320,7 +319,7 @@ def _group(counterion, obs, controls, candidates, th: Thresholds, dose) -> FormG
                     1, "stoichiometry", "pass",
                     f"stoichiometry found {listing} matches the intended {match} "
                     f"(within ±{tol:.0%})", fwells, found, threshold=match,
-                    source=th.get("stoichiometry_tolerance").source))
+                    source=th.get("stoichiometry_tolerance").cite))
             else:
                 tier1, stoich = "mismatch", found
                 reason = (f"stoichiometry found {listing} is not the intended "
@@ -355,7 +354,7 @@ def _group(counterion, obs, controls, candidates, th: Thresholds, dose) -> FormG
                                  f"seen in {len(obs)} wells from {len(solvents)} solvent(s): "
                                  f"{', '.join(solvents)}", ids))
     cand = candidates.get((counterion, stoich)) or _best_candidate(candidates, counterion, intended)
-    tier2, hyg = _tier2(obs, th, dose)
+    tier2, hyg = _tier2(obs, th, dose, dose_src)
     evidence += tier2
     eligible = tier1 in ("confirmed", "unconfirmed")
     label_key = label if label else f"unlabelled-{ids[0]}"
@@ -385,7 +384,7 @@ def _fmt(values, unit) -> str:
     return ", ".join(f"{w} {v:g} {unit}" for v, w in values)
 
 
-def _tier2(obs, th: Thresholds, dose) -> tuple[list[Evidence], str | None]:
+def _tier2(obs, th: Thresholds, dose, dose_src) -> tuple[list[Evidence], str | None]:
     ev: list[Evidence] = []
     ids = tuple(o.well for o in obs)
     # melting onset: lowest well
@@ -397,10 +396,10 @@ def _tier2(obs, th: Thresholds, dose) -> tuple[list[Evidence], str | None]:
         ev.append(Evidence(2, "melting_onset", "pass" if ok else "fail",
                            f"melting onset {low[0]:g} °C (lowest; {_fmt(melt, '°C')}) "
                            f"{'≥' if ok else '<'} {t.value:g} °C", tuple(w for _, w in melt),
-                           low[0], "°C", t.value, source=t.source))
+                           low[0], "°C", t.value, source=t.cite))
     else:
         ev.append(Evidence(2, "melting_onset", "not_measured", "melting onset not measured", ids,
-                           threshold=t.value, source=t.source))
+                           unit="°C", threshold=t.value, source=t.cite))
     # hygroscopicity: highest weight gain, deliquescence from the notes
     gain = _values(obs, "weight_gain_80rh_pct")
     deliq = tuple(o.well for o in obs if o.notes and "deliquesc" in o.notes.lower())
@@ -417,10 +416,10 @@ def _tier2(obs, th: Thresholds, dose) -> tuple[list[Evidence], str | None]:
         ev.append(Evidence(2, "hygroscopicity", "pass" if ok else "fail",
                            f"{HYGROSCOPICITY_TEXT[hyg]}: {detail}; accepted up to "
                            f"{HYGROSCOPICITY_TEXT[t.value]}", wells, hyg, "%", t.value,
-                           source=f"{PH_EUR_511}; accepted class: {t.source}"))
+                           source=f"Ph. Eur. 5.11; accepted class: {t.cite}"))
     else:
         ev.append(Evidence(2, "hygroscopicity", "not_measured", "weight gain at 80 % RH not measured",
-                           ids, threshold=t.value, source=PH_EUR_511))
+                           ids, threshold=t.value, source="Ph. Eur. 5.11"))
     # solubility against the dose in 250 mL
     sol = _values(obs, "solubility_mg_ml")
     t = th.get("dissolution_volume_ml")
@@ -428,13 +427,13 @@ def _tier2(obs, th: Thresholds, dose) -> tuple[list[Evidence], str | None]:
     ph_text = ("; saturated pH " + ", ".join(f"{w} {v:g}" for v, w in ph)) if ph else ""
     if not sol:
         ev.append(Evidence(2, "solubility", "not_measured", "aqueous solubility not measured", ids,
-                           source=ICH_M9))
+                           unit="mg/mL", source=t.cite))
     elif not dose:
         low = min(sol)
         ev.append(Evidence(2, "solubility", "not_assessed",
                            f"solubility {low[0]:g} mg/mL (lowest; {_fmt(sol, 'mg/mL')}){ph_text}; "
                            "no dose given: not assessed against a dose", _wells(sol, ph),
-                           low[0], "mg/mL", source=ICH_M9))
+                           low[0], "mg/mL", source=t.cite))
     else:
         need = required_solubility_mg_ml(dose, t.value)
         low = min(sol)
@@ -444,8 +443,9 @@ def _tier2(obs, th: Thresholds, dose) -> tuple[list[Evidence], str | None]:
                            f"{'≥' if ok else '<'} {need:.3g} mg/mL needed for {dose:g} mg in "
                            f"{t.value:g} mL", _wells(sol, ph),
                            low[0], "mg/mL", round(need, 4),
-                           source=f"{ICH_M9}; required = dose / {t.value:g} mL ({t.source.split(':')[0]}); "
-                                  "measured in water, not over pH 1.2–6.8 at 37 °C"))
+                           provenance=f"measured (results file); required = dose ({dose_src}) / "
+                                      f"{t.value:g} mL",
+                           source=f"{t.cite}; measured in water, not over pH 1.2–6.8 at 37 °C"))
     # solvate / hydrate
     solv = _values(obs, "solvent_content_pct")
     t = th.get("solvent_content_max_pct")
@@ -456,10 +456,10 @@ def _tier2(obs, th: Thresholds, dose) -> tuple[list[Evidence], str | None]:
                            (f"solvent/water content {high[0]:g} % w/w (highest; {_fmt(solv, '%')}) "
                             + (f"≤ {t.value:g} %: no solvate/hydrate indicated" if ok else
                                f"> {t.value:g} %: solvate/hydrate suspected")),
-                           tuple(w for _, w in solv), high[0], "% w/w", t.value, source=t.source))
+                           tuple(w for _, w in solv), high[0], "% w/w", t.value, source=t.cite))
     else:
         ev.append(Evidence(2, "solvate", "not_measured", "solvent/water content not measured", ids,
-                           threshold=t.value, source=t.source))
+                           unit="% w/w", threshold=t.value, source=t.cite))
     return ev, hyg
 
 
@@ -483,7 +483,7 @@ def _why(g: FormGroup, position: int) -> list[str]:
     good, bad, unknown = _counts(g)
     fails = [e.criterion.replace("_", " ") for e in g.evidence if e.tier == 2 and e.status in ("fail", "concern")]
     lines = [f"tier 1 {g.tier1}: crystalline in {', '.join(g.wells)}",
-             f"tier 2: {good} pass, {bad} fail{' (' + ', '.join(fails) + ')' if fails else ''}, "
+             f"tier 2: {good} pass, {bad} fail or concern{' (' + ', '.join(fails) + ')' if fails else ''}, "
              f"{unknown} not measured/assessed"]
     if g.hygroscopicity:
         lines.append(f"hygroscopicity {HYGROSCOPICITY_TEXT[g.hygroscopicity]}")

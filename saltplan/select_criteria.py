@@ -109,10 +109,11 @@ class Threshold:
     unit: str
     source: str
     provenance: str  # "default" (package file) | "user" (override file or mapping)
+    cite: str = ""   # short form of the source, shown beside each finding
 
     def to_dict(self) -> dict[str, Any]:
-        return {"key": self.key, "value": self.value, "unit": self.unit, "source": self.source,
-                "provenance": self.provenance}
+        return {"key": self.key, "value": self.value, "unit": self.unit, "cite": self.cite,
+                "source": self.source, "provenance": self.provenance}
 
 
 @dataclass(frozen=True)
@@ -157,13 +158,13 @@ def _check_value(key: str, value: Any, origin: str) -> Any:
 
 
 @functools.lru_cache(maxsize=1)
-def _defaults() -> tuple[tuple[str, Any, str, str], ...]:
+def _defaults() -> tuple[tuple[str, Any, str, str, str], ...]:
     data = package_yaml("data", "selection_thresholds.yaml")
     origin = "saltplan/data/selection_thresholds.yaml"
     rows = []
     for key, entry in data["thresholds"].items():
         rows.append((key, _check_value(key, entry["value"], origin), str(entry.get("unit", "")),
-                     " ".join(str(entry["source"]).split())))
+                     " ".join(str(entry["source"]).split()), str(entry.get("cite", ""))))
     return tuple(rows)
 
 
@@ -207,17 +208,20 @@ def load_thresholds(override: str | Path | Mapping | Thresholds | None = None) -
             raise ParameterError(f"unknown threshold '{key}'; known: {', '.join(known)}",
                                  file=origin, entry=str(key))
     items = []
-    for key, value, unit, source in defaults:
+    for key, value, unit, source, cite in defaults:
         if key in given:
             entry = given[key]
             src = f"user ({origin})"
             if isinstance(entry, Mapping):
-                if "value" not in entry:
-                    raise ParameterError("missing 'value'", file=origin, entry=key, field="value")
+                unknown = [k for k in entry if k not in ("value", "source", "unit", "cite")]
+                if unknown or "value" not in entry:
+                    raise ParameterError(f"expected {{value, source}}, got {sorted(map(str, entry))}",
+                                         file=origin, entry=key, field="value")
                 src = f"user ({origin}): {entry.get('source') or 'no source given'}"
                 entry = entry["value"]
-            items.append(Threshold(key, _check_value(key, entry, origin), unit, src, "user"))
+            items.append(Threshold(key, _check_value(key, entry, origin), unit, src, "user",
+                                   cite=src))
         else:
-            items.append(Threshold(key, value, unit, source, "default"))
+            items.append(Threshold(key, value, unit, source, "default", cite=cite))
     digest = sha256_text(*(f"{i.key}={i.value!r}" for i in items))
     return Thresholds(tuple(items), digest)

@@ -91,7 +91,11 @@ def _num(value, digits: int = 3) -> str:
 
 
 def _label(value) -> str:
-    return "" if value is None else str(value).replace("_", " ")
+    """Identifiers as words: ``not_measured`` → "not measured", ``non_hygroscopic`` →
+    "non-hygroscopic"."""
+    if value is None:
+        return ""
+    return str(value).replace("non_", "non-").replace("_", " ")
 
 
 def _wells(values) -> str:

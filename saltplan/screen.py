@@ -244,9 +244,11 @@ def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None =
         raise ParameterError(f"liquid_dosing must be neat or stock, got {liquid_dosing!r}",
                              field="liquid_dosing")
     budget = positive_number("api_budget_mg", api_budget_mg)
-    api_mg = positive_number("api_mg_per_well", sc.api_mg if api_mg_per_well is None else api_mg_per_well,
+    api_mg = positive_number("api_mg_per_well",
+                             sc.api_mg if api_mg_per_well is None else api_mg_per_well,
                        high=10000)
-    molarity = positive_number("stock_molarity", DEFAULTS["stock_molarity"] if stock_molarity is None
+    molarity = positive_number("stock_molarity",
+                               DEFAULTS["stock_molarity"] if stock_molarity is None
                          else stock_molarity, high=20)
     exc = DEFAULTS["excess"] if excess is None else excess
     if isinstance(exc, bool) or not isinstance(exc, (int, float)) or not 0 <= exc <= 0.5:
@@ -305,7 +307,8 @@ def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None =
         for sv in chosen:
             for m in mode_ids:
                 mode = MODES[m]
-                anti = slib.get(sv.antisolvent) if mode.needs_antisolvent and sv.antisolvent else None
+                anti = (slib.get(sv.antisolvent) if mode.needs_antisolvent and sv.antisolvent
+                        else None)
                 unfit = _mode_unfit(mode, sv)
                 if unfit:
                     dropped.append(_drop(cand, sv, m, "mode_solvent", unfit,
@@ -364,7 +367,8 @@ def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None =
         "concentrations_mg_ml": _setting(concentrations, conc,
                                          "API concentration per mode, sets the solvent volume "
                                          "(common practice rule of thumb)"),
-        "solvent_ul": _setting(solvent_ul, None, "fixed volume per well instead of a concentration"),
+        "solvent_ul": _setting(solvent_ul, None,
+                               "fixed volume per well instead of a concentration"),
         "antisolvent_ratio": _setting(antisolvent_ratio, DEFAULTS["antisolvent_ratio"],
                                       "volumes of anti-solvent per volume of solvent"),
         "well_capacity_ul": _setting(well_capacity_ul, sc.capacity_ul, sc.basis),
@@ -485,7 +489,8 @@ def _basis(api_mw, cands, exc, conc, fixed_ul, molarity, ratio, slib) -> dict:
         "antisolvent_volume": {"ratio": ratio, "rule": "anti-solvent µL = ratio × solvent µL"},
         "solvents": {"library": slib.source, "hash": slib.hash,
                      "selection": "max-min diversity over standardized log10 ε, Kamlet-Taft α, "
-                                  "β, π* and water miscibility; class 1 never, class 2 penalized"},
+                                  "β, π* and water miscibility; class 1 never, class 2 "
+                                  "penalized"},
     }
 
 

@@ -47,15 +47,20 @@ def equivalents_for(stoichiometry: str, excess: float) -> float:
 
 
 def mass_fraction(counterion) -> float:
-    """Mass fraction of the reagent as dosed (1 for a neat liquid or solid).
+    """Mass fraction of the reagent as dosed: ``solution_w_w`` [% w/w] / 100, or 1 (neat).
 
-    The library's ``solution_w_w`` is read as a percentage when above 1 (37 → 0.37).
+    >>> class HCl: solution_w_w = 37
+    >>> mass_fraction(HCl)
+    0.37
     """
     w = getattr(counterion, "solution_w_w", None)
-    if w in (None, 0):
+    if w is None:
         return 1.0
     w = float(w)
-    return w / 100.0 if w > 1.0 else w
+    if not 0.0 < w <= 100.0:
+        raise ParameterError(f"solution content {w:g} % w/w is outside 0-100",
+                             entry=getattr(counterion, "id", None), field="solution_w_w")
+    return w / 100.0
 
 
 def counterion_amounts(api_mg: float, api_mw: float, equivalents: float, counterion, *,
@@ -139,6 +144,8 @@ def well_entry(kind, cand, sv, mode, anti, api_mg, api_mw, exc, molarity, liquid
                 notes.append(f"{mass_fraction(ci) * 100:g} % w/w solution: brings "
                              f"{amt['counterion_ul'] * ci.density_g_ml - amt['counterion_mg']:.2f}"
                              " mg of its solvent")
+        if "corrosive" in (getattr(ci, "flags", ()) or ()) and amt["counterion_ul"] is not None:
+            notes.append("corrosive reagent: dispense under the site's safety rules")
         if amt["stock_ul"] is not None:
             where = stock_sv.name if stock_sv else sv.name
             notes.append(f"{molarity:g} M stock in {where}")
@@ -151,7 +158,8 @@ def well_entry(kind, cand, sv, mode, anti, api_mg, api_mw, exc, molarity, liquid
     added = 0.0 if stock_sv else (amt["stock_ul"] or 0.0) + (amt["counterion_ul"] or 0.0)
     if added > total_ul:
         raise ParameterError(
-            f"the {cand['counterion']} stock alone ({added:.0f} µL) exceeds the {total_ul:.0f} µL "
+            f"the {cand['counterion']} stock alone ({added:.0f} µL) exceeds the "
+            f"{total_ul:.0f} µL "
             f"of {mode.label} in {sv.name}: raise the stock molarity to at least "
             f"{molarity * added / total_ul:.2g} M or lower the API concentration",
             field="stock_molarity")

@@ -72,7 +72,8 @@ def place_wells(entries, scale, layout, cands, chosen, mode_ids, controls):
             r, c = row_keys.index(rk), col_keys.index((e["sv"].id, e["mode"]))
             placed.append(((r, c), _well(f"{PLATE_ROWS[r]}{c + 1}", e)))
         placed.sort(key=lambda p: p[0])
-        info = {"format": "grid", "scale": "plate", "plate": "SBS 96-well (8 rows A-H × 12 columns)",
+        info = {"format": "grid", "scale": "plate",
+                "plate": "SBS 96-well (8 rows A-H × 12 columns)",
                 "rows": {PLATE_ROWS[i]: k for i, k in enumerate(row_keys)},
                 "columns": {str(i + 1): f"{s} / {m}" for i, (s, m) in enumerate(col_keys)}}
         return [w for _, w in placed], info

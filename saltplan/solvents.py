@@ -11,7 +11,10 @@ Notes
 ICH Q3C Option 1 converts a PDE [mg/day] into a concentration limit [ppm] for a 10 g daily
 dose:
 
-.. math:: \\mathrm{limit\\,[ppm]} = \\frac{1000 \\cdot \\mathrm{PDE\\,[mg/day]}}{10\\,\\mathrm{g/day}}
+.. math::
+
+    \\mathrm{limit\\,[ppm]} = \\frac{1000 \\cdot \\mathrm{PDE\\,[mg/day]}}
+                                 {10\\,\\mathrm{g/day}}
 
 References
 ----------

@@ -457,3 +457,41 @@ def test_screen_cli_usage_errors_exit_2(cli):
     result = cli("screen", "CCN(CC)CC", "--api-budget-mg", "100", "--out", "x",
                  "--scale", "tube")
     assert result.exit_code == 2
+
+
+# --------------------------------------------------------------------------- real library
+@pytest.fixture(scope="module")
+def real_lib():
+    from saltplan.counterions import load_counterions
+
+    return load_counterions()
+
+
+def test_real_library_mesylate_and_hydrochloride_amounts(real_lib):
+    # Same hand calculation as above with the library's RDKit molar masses:
+    # CH4O3S 96.107 g/mol -> 0.0175 mmol x 96.107 = 1.68187 mg; / 1.48 g/mL = 1.13640 µL.
+    # HCl 36.461 g/mol, 37 % w/w, 1.18 g/mL -> 0.63807 mg; / 1.18 / 0.37 = 1.46145 µL.
+    plan = base_plan([_cand("mesylate", "1:1", 1), _cand("hydrochloride", "1:1", 2)])
+    d = design_screen(plan, 500, library=real_lib, solvents=["acetone"], modes=["slurry"])
+    w = {x.counterion: x for x in d.wells if x.kind == "sample"}
+    assert w["mesylate"].counterion_mg == pytest.approx(1.68187, abs=2e-4)
+    assert w["mesylate"].counterion_ul == pytest.approx(1.13640, abs=2e-4)
+    assert w["hydrochloride"].counterion_ul == pytest.approx(1.46145, abs=2e-4)
+    assert d.basis["counterions"]["mesylate"]["density_source"].startswith("CRC")
+
+
+def test_real_library_sulfonic_acids_never_meet_alcohols_unflagged(real_lib):
+    # ICH M7(R2): every library entry flagged sulfonate_ester_risk, in every alcohol
+    sulfonic = [c.id for c in real_lib if "sulfonate_ester_risk" in c.flags]
+    assert {"mesylate", "besylate", "tosylate", "esylate"} <= set(sulfonic)
+    plan = base_plan([_cand(cid, "1:1", i + 1) for i, cid in enumerate(sulfonic)])
+    slib = load_solvents()
+    alcohols = [s.id for s in slib if s.is_alcohol]
+    for risky in (False, True):
+        d = design_screen(plan, 1e6, library=real_lib, counterions=sulfonic,
+                          solvents=alcohols + ["acetone"], modes=["slurry"], scale="vial",
+                          include_risky=risky)
+        for w in d.wells:
+            if w.counterion and slib.get(w.solvent).is_alcohol:
+                assert risky and "sulfonate_ester" in w.flags
+        assert any(w.solvent == "acetone" and w.counterion for w in d.wells)

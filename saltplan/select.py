@@ -30,23 +30,13 @@ from ._provenance import provenance
 from .select_criteria import (HYGROSCOPICITY_CLASSES, HYGROSCOPICITY_TEXT, Thresholds,
                               hygroscopicity_class, load_thresholds, required_solubility_mg_ml)
 from .select_context import cautions, next_steps, open_questions, plan_summary, screen_summary
+from .select_ranking import RANKING_ORDER, assign_roles, rank_key
 from .select_results import (OUTCOMES, Observation, Results, design_dict, parse_ratio,
                              read_results)
 
 __all__ = ["Evidence", "FormGroup", "Selection", "evaluate_results", "read_results",
            "load_design", "RANKING_ORDER"]
 
-#: tie-breaks of the shortlist, in order (each a plain sentence shown in the record)
-RANKING_ORDER = (
-    "tier 1: confirmed stoichiometry before unconfirmed",
-    "tier 2: fewer failed criteria (a suspected solvate/hydrate counts as one)",
-    "tier 2: fewer criteria not measured",
-    "lower Ph. Eur. 5.11 hygroscopicity class (not measured last)",
-    "higher melting onset (not measured last)",
-    "more wells showing the form",
-    "better rank of the counterion/stoichiometry in the plan",
-    "counterion id, then form label (alphabetical)",
-)
 _FREE_FORM_WORDS = ("free form", "free base", "free acid", "parent", "freebase")
 
 
@@ -227,10 +217,10 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
     order = {w["well"]: i for i, w in enumerate(d["wells"])}
 
     groups = _groups(results.observations, candidates, th, dose, dose_source, order)
-    eligible = sorted((g for g in groups if g.eligible), key=_rank_key)
+    eligible = sorted((g for g in groups if g.eligible), key=rank_key)
     others = sorted((g for g in groups if not g.eligible),
                     key=lambda g: (g.counterion, g.form_label or "", g.wells[0]))
-    shortlist = _assign_roles(eligible, bool(th["backup_other_counterion"]))
+    shortlist = assign_roles(eligible, bool(th["backup_other_counterion"]))
     lead = shortlist[0] if shortlist else None
     backup = next((g for g in shortlist if g.role == "backup"), None)
     outcome = "no_lead" if lead is None else ("lead_and_backup" if backup else "lead_only")
@@ -461,60 +451,6 @@ def _tier2(obs, th: Thresholds, dose, dose_src) -> tuple[list[Evidence], str | N
         ev.append(Evidence(2, "solvate", "not_measured", "solvent/water content not measured", ids,
                            unit="% w/w", threshold=t.value, source=t.cite))
     return ev, hyg
-
-
-# --------------------------------------------------------------------------- ranking
-def _counts(g: FormGroup) -> tuple[int, int, int]:
-    t2 = [e for e in g.evidence if e.tier == 2]
-    return (sum(e.status in ("pass",) for e in t2), sum(e.status in ("fail", "concern") for e in t2),
-            sum(e.status in ("not_measured", "not_assessed") for e in t2))
-
-
-def _rank_key(g: FormGroup):
-    _, bad, unknown = _counts(g)
-    hyg = HYGROSCOPICITY_CLASSES.index(g.hygroscopicity) if g.hygroscopicity else len(HYGROSCOPICITY_CLASSES)
-    melt = [e.value for e in g.evidence if e.criterion == "melting_onset" and e.value is not None]
-    return (0 if g.tier1 == "confirmed" else 1, bad, unknown, hyg, -(melt[0]) if melt else float("inf"),
-            -len(g.wells), g.plan_rank if g.plan_rank is not None else 10**6,
-            g.counterion, g.form_label or "", g.wells[0])
-
-
-def _why(g: FormGroup, position: int) -> list[str]:
-    good, bad, unknown = _counts(g)
-    fails = [e.criterion.replace("_", " ") for e in g.evidence if e.tier == 2 and e.status in ("fail", "concern")]
-    lines = [f"tier 1 {g.tier1}: crystalline in {', '.join(g.wells)}",
-             f"tier 2: {good} pass, {bad} fail or concern{' (' + ', '.join(fails) + ')' if fails else ''}, "
-             f"{unknown} not measured/assessed"]
-    if g.hygroscopicity:
-        lines.append(f"hygroscopicity {HYGROSCOPICITY_TEXT[g.hygroscopicity]}")
-    if g.plan_rank is not None:
-        lines.append(f"plan rank {g.plan_rank}" + (f", ΔpKa {g.delta_pka:.1f}" if g.delta_pka is not None else ""))
-    lines.append(f"position {position} by the ranking order")
-    return lines
-
-
-def _assign_roles(eligible: list[FormGroup], other_counterion: bool) -> list[FormGroup]:
-    from dataclasses import replace
-
-    if not eligible:
-        return []
-    lead = eligible[0]
-    backup = None
-    if len(eligible) > 1:
-        if other_counterion:
-            backup = next((g for g in eligible[1:] if g.counterion != lead.counterion), eligible[1])
-        else:
-            backup = eligible[1]
-    out = []
-    for i, g in enumerate(eligible, start=1):
-        role = "lead" if g is lead else "backup" if g is backup else "reserve"
-        why = _why(g, i)
-        if role == "backup" and other_counterion:
-            why.append("back-up: best-ranked form of another counterion than the lead"
-                       if g.counterion != lead.counterion else
-                       "back-up: no form of another counterion qualified; next form of the same counterion")
-        out.append(replace(g, rank=i, role=role, placed_because=tuple(why)))
-    return out
 
 
 def _summary(outcome, lead, backup, results: Results, others) -> str:

@@ -119,7 +119,8 @@ def write_screen(design, out_dir: str | Path) -> list[Path]:
 
 def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | None = None,
                      name: str | None = None, dose_mg: float | None = None, measured=None,
-                     libraries=None, solvent_library=None, **options):
+                     libraries=None, max_heavy_atoms: int = 150, solvent_library=None,
+                     **options):
     """Plan the salts of a structure, design the screen and (optionally) write it.
 
     Parameters
@@ -130,8 +131,11 @@ def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | N
         API available for the screen [mg].
     out_dir : str or Path, optional
         Where to write the outputs (nothing is written when None).
-    name, dose_mg, measured, libraries
-        Passed to :func:`saltplan.plan.plan_salts`.
+    name, dose_mg, measured, libraries, max_heavy_atoms
+        Passed to :func:`saltplan.plan.plan_salts` (the counterion library is loaded once
+        and used by both the plan and the design).
+    solvent_library : path, optional
+        Solvent library file replacing the built-in one.
     **options
         Passed to :func:`saltplan.screen.design_screen`.
 
@@ -143,9 +147,10 @@ def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | N
     from .plan import plan_salts
     from .screen import design_screen
 
-    libs = list(libraries) if libraries else None
-    plan = plan_salts(structure, name=name, dose_mg=dose_mg, measured=measured, libraries=libs)
-    design = design_screen(plan, api_budget_mg, library=load_counterions(libs),
+    library = load_counterions(list(libraries) if libraries else None)
+    plan = plan_salts(structure, name=name, dose_mg=dose_mg, measured=measured,
+                      libraries=library, max_heavy_atoms=max_heavy_atoms)
+    design = design_screen(plan, api_budget_mg, library=library,
                            solvent_library=solvent_library, **options)
     written = write_screen(design, out_dir) if out_dir is not None else []
     return design, written

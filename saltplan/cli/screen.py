@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import common_options, echo_json, structure_argument, table
+from ._common import common_options, echo_json, max_atoms_option, structure_argument, table
 
 MODE_CHOICES = ("slurry", "cooling", "evaporation", "antisolvent")
 
@@ -94,11 +94,12 @@ def _parse_budgets(values):
               help="Measured pKa: 8.1, base=8.1, acid=4.2, ATOM=VALUE or GROUP=VALUE (repeatable).")
 @click.option("--library", "libraries", multiple=True, type=click.Path(exists=True),
               help="Extra counterion library file (repeatable); adds or overrides by id.")
+@max_atoms_option
 @common_options
 def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents, n_solvents,
            modes, api_mg, stock_molarity, excess, liquid_dosing, stock_solvent, layout,
            no_controls, include_risky, counterion_budgets, solvent_library, name, dose_mg,
-           pkas, libraries, as_json):
+           pkas, libraries, max_atoms, as_json):
     """Design the salt screen of a structure and write its files to --out.
 
     Counterions come from the plan (top N or --counterion), solvents are chosen to span
@@ -110,7 +111,7 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
 
     design, written = screen_structure(
         structure, api_budget_mg, out_dir=out_dir, name=name, dose_mg=dose_mg,
-        measured=_parse_pka(pkas), libraries=libraries or None,
+        measured=_parse_pka(pkas), libraries=libraries or None, max_heavy_atoms=max_atoms,
         solvent_library=solvent_library, top=top, counterions=list(counterions) or None,
         solvents=list(solvents) or None, n_solvents=n_solvents, modes=list(modes) or None,
         scale=scale, api_mg_per_well=api_mg, stock_molarity=stock_molarity, excess=excess,

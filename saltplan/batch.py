@@ -121,7 +121,7 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
 
     ``sites`` lists bases (most basic first) then acids (most acidic first);
     ``top_counterions`` the ``top`` best-ranked feasible candidates; ``caveats`` the
-    caveats of those candidates, most severe first.
+    caveats of the API (labelled ``API``) and of those candidates, most severe first.
     """
     parent = plan.get("parent") or {}
     sites = list(plan.get("sites") or [])
@@ -133,6 +133,11 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
                       key=lambda c: (c.get("rank", 0), c.get("counterion", "")))
     shown = feasible[:top]
     caveats = []
+    for cav in plan.get("caveats") or []:        # about the API itself
+        item = (_SEVERITY_ORDER.get(cav.get("severity"), 3), cav.get("code", ""), "API",
+                cav.get("severity", ""))
+        if item not in caveats:
+            caveats.append(item)
     for cand in shown:
         for cav in cand.get("caveats") or []:
             item = (_SEVERITY_ORDER.get(cav.get("severity"), 3), cav.get("code", ""),
@@ -394,12 +399,27 @@ def run_batch(dataframe_or_path, out, *, summary=None, **options) -> BatchRun:
     from .batch_output import open_table_writer
     from .batch_summary import SummaryBuilder, render_summary
 
-    builder = SummaryBuilder(source=str(getattr(dataframe_or_path, "name", None)
-                                        or dataframe_or_path)
-                             if not hasattr(dataframe_or_path, "columns") else "DataFrame")
+    from pathlib import Path
+
+    label = ("DataFrame" if hasattr(dataframe_or_path, "columns")
+             else Path(dataframe_or_path).name)
+    builder = SummaryBuilder(source=label, top=options.get("top", 3))
     writer = open_table_writer(out, COLUMNS)
+    user_progress = options.pop("progress", None)
+    first_call = [True]
+
+    def progress(done, total):
+        # refuse an oversized XLSX after the first chunk rather than at the sheet's end
+        # (the row estimate counts lines, so allow it a little slack)
+        cap = getattr(writer, "max_rows", None)
+        if first_call[0] and cap is not None and total is not None and total > cap * 1.01:
+            writer.refuse(total)
+        first_call[0] = False
+        if user_progress is not None:
+            user_progress(done, total)
+
     try:
-        for rows in iter_evaluate(dataframe_or_path, **options):
+        for rows in iter_evaluate(dataframe_or_path, progress=progress, **options):
             writer.write(rows)
             builder.add(rows)
         pending = [writer]

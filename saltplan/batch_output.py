@@ -180,11 +180,19 @@ class XlsxWriter:
         cell.data_type = "s"  # a name like "=HYPERLINK(...)" stays text, never a formula
         return cell
 
+    @property
+    def max_rows(self) -> int:
+        return XLSX_MAX_ROWS
+
+    def refuse(self, rows: int | None = None) -> None:
+        found = f" (the input has about {rows:,})" if rows else ""
+        raise ParameterError(f"an XLSX sheet holds at most {XLSX_MAX_ROWS:,} data rows{found}; "
+                             "write .csv or .json for a batch this large",
+                             file=str(self.target.path))
+
     def write(self, rows):
         if self.count + len(rows) > XLSX_MAX_ROWS:
-            raise ParameterError(f"an XLSX sheet holds at most {XLSX_MAX_ROWS:,} data rows; "
-                                 "write .csv or .json for a batch this large",
-                                 file=str(self.target.path))
+            self.refuse()
         for row in rows:
             self.ws.append([self._cell(row.get(c)) for c in self.columns])
         self.count += len(rows)

@@ -109,7 +109,7 @@ def histogram_svg(counts, title: str, color: str) -> str:
     edges = [BIN_LOW + i * BIN_WIDTH for i in range(_NBINS)]
     with rc_context({"svg.hashsalt": "saltplan", "svg.fonttype": "path",
                      "font.family": "DejaVu Sans", "font.size": 9}):
-        fig = Figure(figsize=(5.0, 2.6), dpi=72)
+        fig = Figure(figsize=(4.6, 2.6), dpi=72)
         ax = fig.subplots()
         ax.bar(edges, list(counts), width=BIN_WIDTH * 0.92, align="edge", color=color)
         ax.set_xlim(BIN_LOW, BIN_HIGH)

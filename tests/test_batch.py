@@ -355,13 +355,14 @@ def test_summarize_plan_orders_sites_and_limits_top():
                             "feasible": True, "rank": 1,
                             "caveats": [{"code": "z_info", "severity": "info"},
                                         {"code": "y_serious", "severity": "serious"}]}],
-            "verdict": {"code": "salt_candidates"}}
+            "verdict": {"code": "salt_candidates"},
+            "caveats": [{"code": "x_warn", "severity": "warning"}]}
     out = summarize_plan(plan, top=1)
     assert out["sites"] == ("base 9.5 (amine, est.); base 5.0 (pyridine, meas.); "
                             "acid 4.2 (carboxylic_acid, est.); acid 9.9 (phenol, est.)")
     assert out["most_basic_pka"] == 9.5 and out["most_acidic_pka"] == 4.2
     assert out["top_counterions"] == "a 1:2 ΔpKa 5.0" and out["n_feasible"] == 2
-    assert out["caveats"] == "a: y_serious (serious); a: z_info (info)"
+    assert out["caveats"] == "a: y_serious (serious); API: x_warn (warning); a: z_info (info)"
 
 
 # --------------------------------------------------------------------------- writers
@@ -498,7 +499,10 @@ def test_cli_help_states_exit_status(cli):
 
 # --------------------------------------------------------------------------- with plan_salts
 def _real_planner():
-    return pytest.importorskip("saltplan.plan", reason="saltplan.plan not available yet")
+    pytest.importorskip("saltplan.plan", reason="saltplan.plan not available yet")
+    ionization = pytest.importorskip("saltplan.ionization")
+    if not hasattr(ionization, "ionizable_sites"):
+        pytest.skip("saltplan.ionization.ionizable_sites not available yet")
 
 
 def test_end_to_end_with_plan_salts(tmp_path):
@@ -516,3 +520,40 @@ def test_end_to_end_with_plan_salts(tmp_path):
     # benzene has no ionizable site
     assert by_name["benzene"]["verdict"] == "no_ionizable_site"
     assert by_name["morpholine hydrochloride"]["supplied_as"] == "hydrochloride"
+
+
+def test_xlsx_refused_early_from_the_row_estimate(tmp_path, monkeypatch):
+    import saltplan.batch_output as bo
+
+    monkeypatch.setattr(bo, "XLSX_MAX_ROWS", 100)
+    calls = []
+
+    def counting(smiles, **kw):
+        calls.append(smiles)
+        return standin_plan(smiles, **kw)
+
+    with pytest.raises(ParameterError, match="about 1,00"):
+        run_batch(_many(1000, tmp_path), tmp_path / "big.xlsx", evaluator=counting,
+                  chunk_size=10)
+    assert len(calls) == 10  # stopped after the first chunk
+    assert not (tmp_path / "big.xlsx").exists()
+
+
+def test_progress_bar_grows_past_the_estimate():
+    from saltplan.cli.batch import _Progress
+
+    bar = _Progress()
+    for done, total in ((50, 100), (100, 100), (130, 100)):
+        bar(done, total)
+    assert bar.done == 130 and bar.bar.length == 130
+    bar.close()
+
+
+def test_broken_user_library_fails_before_any_row(tmp_path):
+    pytest.importorskip("saltplan.counterions")
+    from saltplan.errors import SaltplanError
+
+    out = tmp_path / "o.csv"
+    with pytest.raises(SaltplanError, match="nope.yaml"):
+        run_batch(FIX / "batch_valid.csv", out, libraries=[str(tmp_path / "nope.yaml")])
+    assert not out.exists() and not list(tmp_path.glob("*.part"))

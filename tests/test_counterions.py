@@ -135,6 +135,26 @@ def test_pka_matches_published_value(lib, cid):
         assert abs(ours - published) <= tol, f"{cid}: {ours} vs {published} ± {tol} ({source})"
 
 
+#: second opinion: values read on open web pages (Wikipedia infoboxes seen through mirror
+#: pages, 2026), independent of the memory-based table above. id -> (values, tolerance, page)
+CHECKED_ON_PAGES = {
+    "mesylate": ([-1.9], 0.05, "Wikipedia 'Methanesulfonic acid' infobox"),
+    "besylate": ([-2.8], 0.05, "Wikipedia 'Benzenesulfonic acid' infobox"),
+    "tosylate": ([-2.8], 0.05, "Wikipedia 'p-Toluenesulfonic acid' infobox (quoted)"),
+    "saccharinate": ([1.6], 0.05, "Wikipedia 'Saccharin' infobox"),
+    "tromethamine": ([8.07], 0.05, "Wikipedia 'Tris' (8.07 at 25 °C)"),
+    "oxalate": ([1.25, 4.14], 0.15, "Wikipedia 'Oxalic acid' infobox (1.25, 4.14; Harris 4.27)"),
+    "malate": ([3.4, 5.1], 0.1, "web summary of malic acid (about 3.4 and 5.1)"),
+    "pamoate": ([2.51, 3.1], 0.05, "German Wikipedia 'Embonsäure' infobox"),
+}
+
+
+@pytest.mark.parametrize("cid", sorted(CHECKED_ON_PAGES))
+def test_pka_matches_value_checked_on_a_page(lib, cid):
+    values, tol, page = CHECKED_ON_PAGES[cid]
+    assert lib.get(cid).pka == pytest.approx(tuple(values), abs=tol), page
+
+
 def test_pka_for_salt_rule(lib):
     # acids: most acidic group; bases: the conjugate acid that takes the proton.
     # Ampholytes: the step between the supplied zwitterion and the salt ion (see amino_acids.yaml):

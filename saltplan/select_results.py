@@ -405,6 +405,10 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
         raise ResultsError(f"not readable as CSV: {exc}", file=origin, row=lines.index) from None
     if header is None:
         raise ResultsError("no header line (expected columns such as well, outcome, ...)", file=origin)
+    if not found:
+        raise ResultsError("no well has an outcome yet: fill in at least the 'outcome' column "
+                           f"({', '.join(OUTCOMES)}) for the wells you observed",
+                           file=origin, field="outcome")
     order = [w["well"] for w in design["wells"]]
     return Results(
         file=origin, sha256=sha,

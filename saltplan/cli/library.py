@@ -64,11 +64,12 @@ def show(counterion_id, libraries, as_json):
         ("id", c.id), ("name", c.name), ("family", c.family), ("smiles", c.smiles),
         ("formula", f"{c.formula}  (MW {c.mw:.2f} g/mol, RDKit; ion in salt "
                     f"{c.ion_mw:.2f} g/mol, charge {c.charge:+d})"),
-        ("role", f"{c.role} ({'salts of basic drugs' if c.role == 'acid' else 'salts of acidic drugs'})"),
+        ("role", f"{c.role} (salts of {'basic' if c.role == 'acid' else 'acidic'} drugs)"),
     ]
     for value, source in zip(c.pka, c.pka_sources):
         lines.append(("pKa", f"{value:.2f}  [literature: {source}]"))
-    lines.append(("pKa for ΔpKa", f"{c.pka_for_salt:.2f}" + (f"  ({c.pka_note})" if c.pka_note else "")))
+    note = f"  ({c.pka_note})" if c.pka_note else ""
+    lines.append(("pKa for ΔpKa", f"{c.pka_for_salt:.2f}{note}"))
     lines.append(("protons", f"{c.n_protons} ({'given' if c.role == 'acid' else 'accepted'})"))
     form = c.form.replace("_", " ")
     if c.solution_w_w is not None:

@@ -73,10 +73,9 @@ def plan_dict(name="TST-7 (test fixture)") -> dict:
     return {
         "name": name,
         "inputs": {"smiles": SMILES, "dose_mg": 100.0, "route": "oral",
-                   "measured": {"13": 5.2}, "libraries": [],
-                   "thresholds": {"salt_expected": 3.0, "likely": 2.0, "uncertain": -1.0,
-                                  "source": "common practice (fixture)"},
-                   "min_delta_pka": 2.0},
+                   "structure": SMILES, "measured": {"13": 5.2}, "libraries": [],
+                   "weights": None, "min_delta_pka": 2.0, "melting_point_c": None,
+                   "intrinsic_solubility_mg_ml": None, "salt_solubility_mg_ml": None},
         "parent": {"input": SMILES, "smiles": SMILES, "name": name, "formula": "C17H20N2O",
                    "mw": 268.36, "heavy_atoms": 20, "supplied_as": None, "api_copies": 1,
                    "stripped": [], "notes": []},
@@ -102,45 +101,44 @@ def plan_dict(name="TST-7 (test fixture)") -> dict:
                     "text": "Salt formation is well supported: the tertiary amine (pKa ~9.1) "
                             "clears the ΔpKa rule with many acids.",
                     "alternatives": []},
-        "solubility": {"s0_mg_ml": 0.012, "method": "GSE (fixture)", "salt_solubility_mg_ml": 10.0,
-                       "salt_solubility_basis": "assumed (fixture)", "ph_max": 6.2,
-                       "profile": [[float(p), min(10.0, 0.012 * (1 + 10 ** (9.12 - p)))]
-                                   for p in range(0, 15)]},
-        "cautions": ["Estimated pKa values must be confirmed by titration."],
-        "references": ["P. H. Stahl, C. G. Wermuth (eds.), Handbook of Pharmaceutical Salts, "
-                       "2nd ed., Wiley-VCH, 2011",
-                       "A. J. Cruz-Cabeza, CrystEngComm 2012, 14, 6362–6365"],
+        "solubility": {
+            "s0_mg_ml": 0.012, "s0_method": "ESOL", "s0_provenance": "estimated",
+            "intrinsic": {"mg_ml": 0.012, "log_s_mol_l": -4.35, "method": "ESOL",
+                          "provenance": "estimated", "source": "ESOL (fixture)",
+                          "inputs": {"clogp": 3.1, "mw": 268.36}},
+            "salt_solubility_mg_ml": 10.0, "salt_solubility_basis": "assumed",
+            "ph_max": 6.2,
+            "ph_max_sites": [{"atom": 1, "kind": "base", "pka": 9.12, "ph_max": 6.2}],
+            "ph_max_source": "pHmax = pKa + log10(S0/S_salt) (fixture)",
+            "profile_sites": [{"kind": "base", "atom": 1, "pka": 9.12}],
+            "profile": [{"ph": float(p), "s_mg_ml": min(10.0, 0.012 * (1 + 10 ** (9.12 - p))),
+                         "free_form_mg_ml": 0.012 * (1 + 10 ** (9.12 - p))}
+                        for p in range(0, 15)],
+            "notes": ["S0 from ESOL (fixture note)"]},
+        "caveats": [_cav("nucleophilic_amine", "info", "No primary or secondary amine: "
+                         "Michael addition of the counterion is not expected.")],
+        "thresholds": {"salt_expected": 3.0, "likely": 2.0, "uncertain": -1.0,
+                       "source": "common practice (fixture)"},
+        "settings": {"min_delta_pka": 2.0, "probability": "P = clip(0.17·ΔpKa + 0.28, 0, 1)",
+                     "weights_source": "built-in (fixture)", "weights_hash": "ef" * 8,
+                     "weights": {"delta_pka": 0.4, "tier": 0.3},
+                     "tie_breaks": "score desc, ΔpKa desc, counterion id, stoichiometry"},
+        "cautions": ["Estimated pKa values must be confirmed by titration.",
+                     "Final choices defer to the pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, "
+                     "Q6A and M7, local regulation and the judgement of qualified staff."],
+        "references": [
+            {"id": "stahl2011", "citation": "P. H. Stahl, C. G. Wermuth (eds.), Handbook of "
+             "Pharmaceutical Salts, 2nd ed., Wiley-VCH, 2011", "used_for": "ΔpKa rule"},
+            {"id": "cruzcabeza2012", "citation": "A. J. Cruz-Cabeza, CrystEngComm 2012, 14, "
+             "6362–6365", "used_for": "categories, probability"}],
         "provenance": {"tool": "saltplan", "version": "0.1.0", "library_hash": "ab" * 32,
-                       "input_hash": "cd" * 32, "created": "2026-12-02T07:30:00Z"},
+                       "weights_hash": "ef" * 8, "input_hash": "sha256:" + "cd" * 32,
+                       "created": "2026-12-02T07:30:00Z"},
     }
 
 
-def screen_dict(plan=None) -> dict:
-    plan = copy.deepcopy(plan or plan_dict())
-    ions = [("hydrochloride", "1:1", 1.05), ("mesylate", "1:1", 1.05), ("fumarate", "1:1", 1.0)]
-    solvents = ["acetone", "ethyl-acetate", "acetonitrile", "2-propanol"]
-    wells = []
-    for i, (cid, st, eq) in enumerate(ions):
-        for j, sol in enumerate(solvents):
-            well = "ABC"[i] + str(j + 1)
-            flags = ["sulfonate_ester_risk"] if cid == "mesylate" and sol == "2-propanol" else []
-            wells.append({"well": well, "counterion": cid, "stoichiometry": st,
-                          "equivalents": eq, "solvent": sol, "mode": "slurry", "api_mg": 5.0,
-                          "counterion_mg": 1.9, "counterion_ul": None, "stock_ul": 18.6,
-                          "solvent_ul": 100.0, "flags": flags, "kind": "sample"})
-    wells.append({"well": "H12", "counterion": None, "stoichiometry": None, "equivalents": 0.0,
-                  "solvent": "acetone", "mode": "slurry", "api_mg": 5.0, "counterion_mg": 0.0,
-                  "counterion_ul": None, "stock_ul": 0.0, "solvent_ul": 100.0, "flags": [],
-                  "kind": "control"})
-    return {
-        "plan": plan,
-        "settings": {"api_mg_per_well": 5.0, "modes": ["slurry"], "plate": "96"},
-        "solvents": [{"id": s, "name": s.replace("-", " "), "ich_class": 3 if s != "acetonitrile"
-                      else 2, "reason": "spans polarity (fixture)"} for s in solvents],
-        "wells": wells,
-        "dropped": [{"counterion": "mesylate", "solvent": "methanol",
-                     "reason": "sulfonic acid with an alcohol: sulfonate ester risk (ICH M7)"}],
-        "totals": {"api_mg": 65.0, "counterions_mg": {"hydrochloride": 7.6, "mesylate": 7.6,
-                                                      "fumarate": 7.6}},
-        "budget": {"api_mg": 400.0, "used_mg": 65.0},
-    }
+def screen_dict(plan=None, budget_mg=400.0) -> dict:
+    """The real screen designer run on the hand-made plan."""
+    from saltplan.screen import design_screen
+
+    return design_screen(copy.deepcopy(plan or plan_dict()), budget_mg).to_dict()

@@ -381,11 +381,22 @@ def test_plate_grid_places_wells(screen):
     rows = grids[0]["rows"]
     assert [r["row"] for r in rows] == list("ABCDEFGH")
     assert all(len(r["cells"]) == 12 for r in rows)
-    a1 = rows[0]["cells"][0]
-    assert (a1["well"], a1["counterion"], a1["solvent"]) == ("A1", "hydrochloride", "acetone")
-    assert rows[7]["cells"][11]["kind"] == "control"
-    fills = {c["fill"] for r in rows for c in r["cells"] if c["kind"] == "sample"}
-    assert len(fills) == 3                              # one colour per counterion
+    by_pos = {c["well"]: c for r in rows for c in r["cells"]}
+    for w in screen["wells"]:
+        cell = by_pos[w["well"]]
+        assert cell["kind"] == w["kind"]
+        assert cell["solvent"] == w["solvent"] and cell["mode"] == w["mode"]
+        if w["kind"] == "sample":
+            assert (cell["counterion"], cell["stoichiometry"]) == (w["counterion"],
+                                                                   w["stoichiometry"])
+    used = {w["well"] for w in screen["wells"]}
+    assert sum(1 for c in by_pos.values() if c["kind"] == "empty") == 96 - len(used)
+    fills = {}
+    for w in screen["wells"]:
+        if w["kind"] == "sample":
+            fills.setdefault(w["counterion"], set()).add(by_pos[w["well"]]["fill"])
+    assert all(len(f) == 1 for f in fills.values())     # one colour per counterion
+    assert len({next(iter(f)) for f in fills.values()}) == len(fills)   # all different
 
 
 @pytest.mark.parametrize("bad", ["I1", "A13", "A0", "", "1A"])

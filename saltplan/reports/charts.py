@@ -192,19 +192,24 @@ def ionization_chart(sites: Sequence[dict], name: str = "ionized") -> str:
 
 # --------------------------------------------------------------------------- solubility
 def solubility_chart(points: Sequence[tuple[float, float]], ph_max: float | None,
-                     s0: float | None, unit: str, name: str = "solubility") -> str:
+                     s0: float | None, unit: str, name: str = "solubility",
+                     free: Sequence[tuple[float, float]] = ()) -> str:
     """pH–solubility profile on a log axis, with pHmax and the intrinsic solubility S₀.
 
-    ``points``: (pH, solubility) pairs in ``unit`` (e.g. "mg/mL"); non-positive values are
-    skipped (a log axis cannot show them).
+    ``points``: (pH, solubility) pairs in ``unit`` (e.g. "mg/mL") with the salt plateau;
+    ``free``: the free-form curve without it. Non-positive values are skipped (log axis).
     """
     with _rc():
         fig = _figure(7.2, 3.0)
         ax = fig.add_subplot()
         pts = [(float(p), float(s)) for p, s in points if s is not None and float(s) > 0]
         if pts:
-            ax.plot([p for p, _ in pts], [s for _, s in pts], color=PALETTE[0], lw=1.6,
-                    label="total solubility (estimate)")
+            ax.plot([p for p, _ in pts], [s for _, s in pts], color=PALETTE[0], lw=1.8,
+                    label="with the salt plateau (estimate)")
+        fpts = [(float(p), float(s)) for p, s in free if s is not None and float(s) > 0]
+        if fpts:
+            ax.plot([p for p, _ in fpts], [s for _, s in fpts], color=PALETTE[3], lw=1.0,
+                    ls=":", label="free form only (no salt limit)")
         if s0 is not None and s0 > 0:
             ax.axhline(s0, color=PALETTE[1], ls="--", lw=1.0, label=f"S₀ (free form) {s0:.3g} {unit}")
         if ph_max is not None:
@@ -212,6 +217,9 @@ def solubility_chart(points: Sequence[tuple[float, float]], ph_max: float | None
         from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
         ax.set_yscale("log")
+        ys = [s for _, s in pts] + ([s0] if s0 else [])
+        if ys:
+            ax.set_ylim(min(ys) / 3.0, max(ys) * 10.0)   # the free-form curve may leave the top
         ax.yaxis.set_major_locator(LogLocator(base=10))
         ax.yaxis.set_major_formatter(FuncFormatter(_plain_number))
         ax.yaxis.set_minor_formatter(NullFormatter())

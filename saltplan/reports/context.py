@@ -10,49 +10,15 @@ from __future__ import annotations
 import json
 from typing import Any
 
-from . import charts, drawing, platemap, rationale
+from . import charts, drawing, rationale
+from .screenview import screen_view
 
-CATEGORY_LABELS = {"salt_expected": "salt expected", "likely": "likely",
-                   "uncertain": "uncertain", "unlikely": "unlikely"}
-SEVERITY_ORDER = {"serious": 0, "warning": 1, "info": 2}
-PROVENANCE_SHORT = {"measured": "meas.", "user": "user", "estimated": "est."}
+from .context_base import (CATEGORY_LABELS, PROVENANCE_SHORT, SEVERITY_ORDER, MissingKey,
+                           fmt, need, plain, text_of)
 
+__all__ = ["build_context", "MissingKey", "need", "fmt"]
 
-class MissingKey(KeyError):
-    """A required key is missing from a plan / screen dict (message names its path)."""
-
-    def __str__(self) -> str:
-        return str(self.args[0])
-
-
-def need(d: Any, key: str, where: str) -> Any:
-    """``d[key]``, or :class:`MissingKey` naming ``where.key``."""
-    if not isinstance(d, dict):
-        raise MissingKey(f"report input: '{where}' must be a mapping, got {type(d).__name__}")
-    if key not in d:
-        raise MissingKey(f"report input: missing required key '{where}.{key}'")
-    return d[key]
-
-
-def text_of(item: Any) -> str:
-    """Plain text of a caution / reference that may be a string or a small dict."""
-    if isinstance(item, str):
-        return item
-    if isinstance(item, dict):
-        for key in ("text", "citation", "reference", "title"):
-            if item.get(key):
-                return str(item[key])
-    return json.dumps(item, ensure_ascii=False, sort_keys=True)
-
-
-def fmt(value: Any, digits: int = 2, unit: str = "") -> str:
-    """A number with fixed decimals (``−`` for negatives), or "n/a" for None."""
-    if value is None:
-        return "n/a"
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return str(value)
-    s = f"{value:.{digits}f}".replace("-", "−")
-    return f"{s} {unit}".strip()
+PART_LABELS = {"delta_pka": "ΔpKa", "drug_content": "drug content"}
 
 
 # --------------------------------------------------------------------------- sections
@@ -125,7 +91,7 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
         cid = need(c, "counterion", w)
         name = c.get("counterion_name") or ""
         bd = c.get("breakdown") or {}
-        parts = [{"key": k, "label": k.replace("_", " "), "value": float(bd[k]),
+        parts = [{"key": k, "label": PART_LABELS.get(k, k.replace("_", " ")), "value": float(bd[k]),
                   "text": fmt(float(bd[k]), 3), "colour": charts.part_colour(keys.index(k))}
                  for k in keys if k in bd]
         positive_total = sum(p["value"] for p in parts if p["value"] > 0)
@@ -183,31 +149,51 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
 
 
 def solubility_view(sol: Any) -> dict | None:
-    """Normalize the plan's solubility sketch; None when absent."""
+    """Normalize the plan's solubility sketch (``SolubilitySketch.to_dict()``); None if absent."""
     if not sol:
         return None
-    points: list[tuple[float, float]] = []
-    profile = sol.get("profile") or sol.get("ph_profile") or []
-    if isinstance(profile, dict) and "ph" in profile:
-        ys = profile.get("s_mg_ml") or profile.get("solubility_mg_ml") or []
-        points = list(zip(profile["ph"], ys))
-    else:
-        for p in profile:
-            if isinstance(p, dict):
-                points.append((p.get("ph"), p.get("s_mg_ml", p.get("solubility_mg_ml"))))
-            else:
-                points.append((p[0], p[1]))
-    points = [(float(x), float(y)) for x, y in points if x is not None and y is not None]
-    s0 = sol.get("s0_mg_ml")
-    rows = []
-    for key, value in sol.items():
-        if key in ("profile", "ph_profile"):
+    total: list[tuple[float, float]] = []
+    free: list[tuple[float, float]] = []
+    for p in sol.get("profile") or []:
+        if isinstance(p, dict):
+            ph, s_tot, s_free = p.get("ph"), p.get("s_mg_ml"), p.get("free_form_mg_ml")
+        else:
+            ph, s_tot, s_free = (list(p) + [None, None])[:3]
+        if ph is None:
             continue
-        rows.append({"label": key.replace("_", " "),
-                     "value": fmt(value, 3) if isinstance(value, float) else
-                     (", ".join(map(str, value)) if isinstance(value, list) else str(value))})
-    return {"points": points, "s0": s0, "ph_max": sol.get("ph_max"), "unit": "mg/mL",
-            "rows": rows}
+        if s_tot is not None:
+            total.append((float(ph), float(s_tot)))
+        if s_free is not None:
+            free.append((float(ph), float(s_free)))
+    intrinsic = sol.get("intrinsic") or {}
+    rows = []
+    if sol.get("s0_mg_ml") is not None:
+        rows.append({"label": "intrinsic solubility S₀ of the free form",
+                     "value": f"{sol['s0_mg_ml']:.3g} mg/mL"
+                     + (f" (log S {intrinsic['log_s_mol_l']:.2f} mol/L)"
+                        if intrinsic.get("log_s_mol_l") is not None else ""),
+                     "prov": " · ".join(str(x) for x in (
+                         sol.get("s0_provenance") or intrinsic.get("provenance"),
+                         sol.get("s0_method") or intrinsic.get("method"),
+                         intrinsic.get("source")) if x)})
+        if intrinsic.get("inputs"):
+            rows.append({"label": "S₀ inputs", "value": "; ".join(
+                f"{k} {plain(v)}" for k, v in intrinsic["inputs"].items()), "prov": "computed"})
+    if sol.get("salt_solubility_mg_ml") is not None:
+        rows.append({"label": "salt solubility (for pHmax)",
+                     "value": f"{sol['salt_solubility_mg_ml']:.3g} mg/mL as free form",
+                     "prov": sol.get("salt_solubility_basis") or ""})
+    for site in sol.get("ph_max_sites") or []:
+        rows.append({"label": f"pHmax, {site.get('kind')} site atom {site.get('atom')}",
+                     "value": f"{fmt(site.get('ph_max'))} (site pKa {fmt(site.get('pka'))})",
+                     "prov": sol.get("ph_max_source") or "estimated"})
+    for note in sol.get("notes") or []:
+        rows.append({"label": "solubility note", "value": str(note), "prov": ""})
+    sites = sol.get("profile_sites") or []
+    return {"points": total, "free_points": free, "s0": sol.get("s0_mg_ml"),
+            "ph_max": sol.get("ph_max"), "unit": "mg/mL", "rows": rows,
+            "profile_sites": ", ".join(f"{x.get('kind')} atom {x.get('atom')} pKa "
+                                       f"{fmt(x.get('pka'))}" for x in sites)}
 
 
 def input_rows(plan: dict, th: dict) -> list[dict]:
@@ -239,20 +225,19 @@ def input_rows(plan: dict, th: dict) -> list[dict]:
          f"salt expected ≥ {fmt(th['salt_expected'], 1)}; likely ≥ {fmt(th['likely'], 1)}; "
          f"uncertain ≥ {fmt(th['uncertain'], 1)}; below: unlikely", "prov": th.get("source", "")},
     ]
-    known = {"smiles", "dose_mg", "route", "measured", "libraries", "thresholds"}
+    known = {"smiles", "structure", "dose_mg", "route", "measured", "libraries", "thresholds"}
     for key, value in inputs.items():
         if key in known or value is None or value == [] or value == {}:
             continue
-        rows.append({"label": key.replace("_", " "), "value": _plain(value), "prov": "user / default"})
+        rows.append({"label": key.replace("_", " "), "value": plain(value), "prov": "user"})
+    for key, value in (plan.get("settings") or {}).items():
+        if key in ("min_delta_pka",) and "min_delta_pka" in inputs:
+            continue
+        if key == "weights" and isinstance(value, dict):
+            value = "; ".join(f"{k} {plain(v)}" for k, v in value.items())
+        rows.append({"label": key.replace("_", " "), "value": plain(value),
+                     "prov": "setting (ranking configuration / default)"})
     return rows
-
-
-def _plain(value: Any) -> str:
-    if isinstance(value, float):
-        return fmt(value, 2)
-    if isinstance(value, (dict, list)):
-        return json.dumps(value, ensure_ascii=False, sort_keys=False)
-    return str(value)
 
 
 def _measured_text(measured: Any) -> str:
@@ -272,56 +257,6 @@ def verdict_view(plan: dict, cands: list[dict]) -> dict:
             "alternatives": [text_of(a) for a in (v.get("alternatives") or [])],
             "top": [c for c in cands if c["feasible"]][:3],
             "has_salts": need(v, "code", "plan.verdict") == "salt_candidates" and bool(cands)}
-
-
-# --------------------------------------------------------------------------- screen
-def screen_view(screen: dict | None) -> dict | None:
-    if not screen:
-        return None
-    wells = need(screen, "wells", "screen")
-    solvents = [dict(s) for s in (screen.get("solvents") or [])]
-    names = {s.get("id"): s.get("name") or s.get("id") for s in solvents}
-    wells_rows = []
-    for i, w in enumerate(wells):
-        where = f"screen.wells[{i}]"
-        need(w, "well", where)
-        need(w, "kind", where)
-        wells_rows.append({
-            "well": w["well"], "kind": w["kind"], "counterion": w.get("counterion") or "—",
-            "stoichiometry": w.get("stoichiometry") or "—",
-            "equivalents": fmt(w.get("equivalents"), 2), "solvent": w.get("solvent") or "",
-            "mode": w.get("mode") or "", "api_mg": fmt(w.get("api_mg"), 2),
-            "counterion_mg": fmt(w.get("counterion_mg"), 2) if w.get("counterion_mg") else "—",
-            "counterion_ul": fmt(w.get("counterion_ul"), 1) if w.get("counterion_ul") else "—",
-            "stock_ul": fmt(w.get("stock_ul"), 1) if w.get("stock_ul") else "—",
-            "solvent_ul": fmt(w.get("solvent_ul"), 0) if w.get("solvent_ul") else "—",
-            "flags": ", ".join(w.get("flags") or []),
-        })
-    try:
-        grids = platemap.plate_grids(wells, names)
-    except ValueError as exc:
-        raise MissingKey(f"report input: {exc}") from None
-    return {
-        "settings_rows": [{"label": k.replace("_", " "), "value": _plain(v)}
-                          for k, v in (screen.get("settings") or {}).items()],
-        "solvents": solvents, "grids": grids,
-        "legend": platemap.counterion_styles(wells),
-        "wells": wells_rows, "n_samples": sum(1 for w in wells if w["kind"] == "sample"),
-        "n_controls": sum(1 for w in wells if w["kind"] != "sample"),
-        "dropped": [{"what": _combo(d), "reason": d.get("reason") or ""}
-                    for d in (screen.get("dropped") or [])],
-        "totals_rows": [{"label": k.replace("_", " "), "value": _plain(v)}
-                        for k, v in (screen.get("totals") or {}).items()],
-        "budget_rows": [{"label": k.replace("_", " "), "value": _plain(v)}
-                        for k, v in (screen.get("budget") or {}).items()]
-        if isinstance(screen.get("budget"), dict) else
-        ([{"label": "budget", "value": _plain(screen["budget"])}] if screen.get("budget") else []),
-    }
-
-
-def _combo(d: dict) -> str:
-    parts = [str(d[k]) for k in ("counterion", "stoichiometry", "solvent", "mode") if d.get(k)]
-    return " × ".join(parts) if parts else text_of(d.get("combination") or d)
 
 
 # --------------------------------------------------------------------------- all together
@@ -368,9 +303,12 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
     if graphics and sol and sol["points"]:
         chart_list.append({
             "id": "chart-solubility", "title": "pH–solubility profile (estimate)",
-            "svg": charts.solubility_chart(sol["points"], sol["ph_max"], sol["s0"], sol["unit"]),
-            "note": "Henderson–Hasselbalch with a solubility product (Streng et al. 1984); "
-                    "intrinsic solubility estimated, about ±1 log unit."})
+            "svg": charts.solubility_chart(sol["points"], sol["ph_max"], sol["s0"], sol["unit"],
+                                           free=sol["free_points"]),
+            "note": "Henderson–Hasselbalch with a salt plateau (pHmax from S₀ and the salt "
+                    "solubility, see Inputs and assumptions); intrinsic solubility from an "
+                    "estimate, about ±1 log unit." + (f" Sites used: {sol['profile_sites']}."
+                                                      if sol["profile_sites"] else "")})
     ctx = {
         "name": name, "plan": plan, "parent": parent,
         "created": prov["created"], "version": prov["version"], "tool": prov["tool"],
@@ -382,19 +320,49 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
         "sites": sites, "candidates": cands, "excluded": excluded, "thresholds": th,
         "breakdown_legend": _legend(cands), "charts": chart_list, "solubility": sol,
         "screen": screen_ctx,
-        "cautions": [text_of(c) for c in need(plan, "cautions", "plan")],
-        "references": [text_of(r) for r in need(plan, "references", "plan")],
-        "provenance": [{"label": k.replace("_", " "), "value": _plain(v)} for k, v in prov.items()],
+        "cautions": _cautions(need(plan, "cautions", "plan"), screen_ctx),
+        "references": [_reference(r) for r in need(plan, "references", "plan")],
+        "api_caveats": sorted((plan.get("caveats") or []),
+                              key=lambda cv: (SEVERITY_ORDER.get(cv.get("severity"), 9),
+                                              cv.get("code") or "")),
+        "provenance": [{"label": k.replace("_", " "), "value": plain(v)} for k, v in prov.items()],
     }
     ctx["rationale"] = rationale.paragraphs(ctx)
     return ctx
 
 
+DEFERENCE = ("Final choices defer to the pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, Q6A and "
+             "M7, local regulation and the judgement of qualified staff.")
+
+
+def _cautions(plan_cautions: list, screen_ctx: dict | None) -> list[str]:
+    """Plan cautions, then the screen's, without repeats; the deference always present."""
+    out: list[str] = []
+    for c in list(plan_cautions) + (screen_ctx["cautions"] if screen_ctx else []):
+        text = text_of(c)
+        if text not in out:
+            out.append(text)
+    if not any("USP" in c and "qualified staff" in c for c in out):
+        out.append(DEFERENCE)
+    return out
+
+
+def _reference(r: Any) -> str:
+    text = text_of(r)
+    if isinstance(r, dict) and r.get("used_for"):
+        text += f" — used for: {r['used_for']}"
+    return text
+
+
 def _legend(cands: list[dict]) -> list[dict]:
+    """Breakdown parts in first-seen order; ``penalty`` when a part is never positive."""
     seen: dict[str, dict] = {}
     for c in cands:
         for p in c["parts"]:
-            seen.setdefault(p["key"], {"label": p["label"], "colour": p["colour"]})
+            entry = seen.setdefault(p["key"], {"label": p["label"], "colour": p["colour"],
+                                               "penalty": True})
+            if p["value"] > 0:
+                entry["penalty"] = False
     return list(seen.values())
 
 

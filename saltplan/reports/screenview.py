@@ -1,0 +1,134 @@
+"""View model of a screen design (``ScreenDesign.to_dict()``) for the report templates."""
+from __future__ import annotations
+
+from typing import Any
+
+from . import platemap
+from .context_base import MissingKey, fmt, need, plain, text_of
+
+
+def _setting_rows(settings: dict) -> list[dict]:
+    rows = []
+    for key, value in settings.items():
+        if isinstance(value, dict) and "value" in value:
+            prov = value.get("provenance") or ""
+            basis = value.get("basis") or ""
+            rows.append({"label": key.replace("_", " "), "value": plain(value["value"]),
+                         "prov": f"{prov}: {basis}" if basis and basis != prov else prov})
+        else:
+            rows.append({"label": key.replace("_", " "), "value": plain(value), "prov": ""})
+    return rows
+
+
+def _num(value: Any, digits: int) -> str:
+    return "—" if value is None else fmt(value, digits)
+
+
+def _note_index(wells: list[dict]) -> list[dict]:
+    """Each distinct well note once, numbered in order of first appearance, with its wells."""
+    notes: dict[str, list[str]] = {}
+    for w in wells:
+        for n in w.get("notes") or []:
+            notes.setdefault(str(n), []).append(w["well"])
+    return [{"number": i + 1, "text": text, "wells": ", ".join(ws)}
+            for i, (text, ws) in enumerate(notes.items())]
+
+
+def _well_row(w: dict, numbers: dict[str, int]) -> dict:
+    return {
+        "well": w["well"], "kind": w["kind"], "counterion": w.get("counterion") or "—",
+        "stoichiometry": w.get("stoichiometry") or "—",
+        "equivalents": _num(w.get("equivalents"), 2), "solvent": w.get("solvent") or "",
+        "antisolvent": (f"{w['antisolvent']} {fmt(w.get('antisolvent_ul'), 0)} µL"
+                        if w.get("antisolvent") else "—"),
+        "mode": w.get("mode") or "", "api_mg": _num(w.get("api_mg"), 2),
+        "counterion_mg": _num(w.get("counterion_mg"), 3),
+        "counterion_ul": _num(w.get("counterion_ul"), 2),
+        "stock_ul": _num(w.get("stock_ul"), 1), "solvent_ul": _num(w.get("solvent_ul"), 0),
+        "flags": ", ".join(w.get("flags") or []),
+        "notes": ", ".join(str(numbers[str(n)]) for n in (w.get("notes") or [])),
+    }
+
+
+def _totals(totals: dict) -> tuple[list[dict], list[dict], list[dict]]:
+    rows, ions, stocks = [], [], []
+    for key, value in totals.items():
+        if key == "counterions" and isinstance(value, dict):
+            for cid, t in value.items():
+                t = t if isinstance(t, dict) else {"mg": t}
+                ions.append({"counterion": cid, "wells": plain(t.get("wells", "")),
+                             "mmol": _num(t.get("mmol"), 4), "mg": _num(t.get("mg"), 2),
+                             "neat_ul": _num(t.get("neat_ul"), 1),
+                             "stock_ul": _num(t.get("stock_ul"), 1)})
+        elif key == "stocks" and isinstance(value, list):
+            for t in value:
+                stocks.append({"counterion": t.get("counterion") or "",
+                               "solvent": t.get("solvent") or "",
+                               "molarity": _num(t.get("molarity_m"), 2),
+                               "prepare_ml": _num(t.get("prepare_ml"), 2),
+                               "weigh_mg": _num(t.get("weigh_mg"), 2),
+                               "basis": t.get("basis") or ""})
+        else:
+            rows.append({"label": key.replace("_", " "), "value": plain(value)})
+    return rows, ions, stocks
+
+
+def screen_view(screen: dict | None) -> dict | None:
+    """Normalized screen section; None without a screen."""
+    if not screen:
+        return None
+    wells = need(screen, "wells", "screen")
+    for i, w in enumerate(wells):
+        need(w, "well", f"screen.wells[{i}]")
+        need(w, "kind", f"screen.wells[{i}]")
+    solvents = []
+    for s in screen.get("solvents") or []:
+        solvents.append({"id": s.get("id") or "", "name": s.get("name") or s.get("id") or "",
+                         "ich_class": "n/a" if s.get("ich_class") is None else s["ich_class"],
+                         "ich_limit": "" if s.get("ich_limit_ppm") is None
+                         else f"{s['ich_limit_ppm']:g} ppm",
+                         "reason": s.get("reason") or "",
+                         "antisolvent": s.get("antisolvent") or ""})
+    names = {s["id"]: s["name"] for s in solvents}
+    layout = screen.get("layout") or {}
+    grids = []
+    if layout.get("scale", "plate") == "plate":
+        try:
+            grids = platemap.plate_grids(wells, names)
+        except ValueError as exc:
+            raise MissingKey(f"report input: {exc}") from None
+    notes = _note_index(wells)
+    numbers = {n["text"]: n["number"] for n in notes}
+    totals_rows, ion_totals, stocks = _totals(screen.get("totals") or {})
+    budget = screen.get("budget") or {}
+    n_samples = sum(1 for w in wells if w["kind"] == "sample")
+    return {
+        "settings_rows": _setting_rows(screen.get("settings") or {}),
+        "solvents": solvents,
+        "modes": [{"id": m.get("id") or "", "label": m.get("label") or m.get("id") or "",
+                   "how": m.get("how") or ""} for m in screen.get("modes") or []],
+        "grids": grids, "is_plate": bool(grids),
+        "layout_format": layout.get("format") or "",
+        "layout_rows": [{"key": k, "value": plain(v)} for k, v in (layout.get("rows") or {}).items()],
+        "layout_columns": [{"key": k, "value": plain(v)}
+                           for k, v in (layout.get("columns") or {}).items()],
+        "layout_order": layout.get("order") or "",
+        "legend": platemap.counterion_styles(wells) if grids else [],
+        "wells": [_well_row(w, numbers) for w in wells], "notes": notes,
+        "n_samples": n_samples,
+        "n_controls": len(wells) - n_samples,
+        "dropped": [{"what": _combo(d), "reason": d.get("reason") or "",
+                     "source": d.get("source") or ""} for d in screen.get("dropped") or []],
+        "totals_rows": totals_rows, "ion_totals": ion_totals, "stocks": stocks,
+        "budget_rows": ([{"label": k.replace("_", " "), "value": plain(v)}
+                         for k, v in budget.items()] if isinstance(budget, dict)
+                        else [{"label": "budget", "value": plain(budget)}]),
+        "flag_legend": [{"flag": k, "text": plain(v)}
+                        for k, v in (screen.get("flag_legend") or {}).items()],
+        "cautions": [text_of(c) for c in screen.get("cautions") or []],
+    }
+
+
+def _combo(d: dict) -> str:
+    parts = [str(d[k]) for k in ("counterion", "stoichiometry", "solvent", "mode") if d.get(k)]
+    return " × ".join(parts) if parts else text_of(d.get("combination") or d)

@@ -60,6 +60,7 @@ class Mode:
     how: str
     min_bp_c: float | None = None
     max_bp_c: float | None = None
+    end_c: float | None = None       # lowest temperature the mode reaches [°C]
     needs_antisolvent: bool = False
 
 
@@ -70,7 +71,7 @@ MODES: dict[str, Mode] = {m.id: m for m in (
          "for 3-7 days; isolate the solid"),
     Mode("cooling", "cooling", 25.0,
          "dissolve at up to 50 °C (at least 10 °C below the boiling point), cool slowly "
-         "(about 0.1-0.5 °C/min) to 5 °C", min_bp_c=60.0),
+         "(about 0.1-0.5 °C/min) to 5 °C", min_bp_c=60.0, end_c=5.0),
     Mode("evaporation", "evaporation", 10.0,
          "dissolve (filter if needed) and let the solvent evaporate slowly at ambient "
          "temperature (pierced cap or gentle nitrogen flow)", max_bp_c=150.0),
@@ -99,6 +100,8 @@ SCALES = {
 DEFAULTS = {"top": 4, "n_solvents": 4, "modes": ("slurry", "evaporation"),
             "stock_molarity": 0.5, "excess": 0.05, "antisolvent_ratio": 2.0,
             "stock_overage": 0.2}
+#: a cooling end point must lie this far above the solvent's melting point [°C]
+FREEZE_MARGIN_C = 5.0
 #: below this a neat liquid volume is hard to dispense accurately (common practice)
 API_MW_SOURCE = "RDKit Descriptors.MolWt of the parent (IUPAC standard atomic weights)"
 CI_MW_SOURCE = "RDKit Descriptors.MolWt of the counterion library SMILES (as dosed)"
@@ -444,6 +447,10 @@ def _mode_unfit(mode: Mode, sv) -> str | None:
     if mode.min_bp_c is not None and sv.bp_c < mode.min_bp_c:
         return (f"{mode.label} needs a boiling point of at least {mode.min_bp_c:g} °C "
                 f"({sv.name}: {sv.bp_c:g} °C)")
+    if mode.end_c is not None and sv.mp_c is not None \
+            and sv.mp_c > mode.end_c - FREEZE_MARGIN_C:
+        return (f"{mode.label} ends at {mode.end_c:g} °C, too close to the melting point of "
+                f"{sv.name} ({sv.mp_c:g} °C)")
     if mode.max_bp_c is not None and sv.bp_c > mode.max_bp_c:
         return (f"{mode.label} is impractical above a boiling point of {mode.max_bp_c:g} °C "
                 f"({sv.name}: {sv.bp_c:g} °C)")

@@ -46,15 +46,17 @@ _TOP_KEYS = ("schema", "title", "sources", "field_sources", "solvents")
 _REQUIRED = ("id", "name", "smiles", "family", "ich_class", "bp_c", "density_g_ml",
              "density_t_c", "dielectric", "dielectric_t_c", "kt_alpha", "kt_beta",
              "kt_pi_star", "water_miscibility", "is_alcohol", "antisolvent", "default_pool")
-_OPTIONAL = ("ich_pde_mg_day", "ich_limit_ppm", "ich_note", "pool_note", "notes", "sources")
+_OPTIONAL = ("mp_c", "ich_pde_mg_day", "ich_limit_ppm", "ich_note", "pool_note", "notes",
+             "sources")
 _ALLOWED = _REQUIRED + _OPTIONAL
 #: fields whose source can be named (field_sources / per-entry sources)
-_SOURCED = ("ich_class", "ich_limit_ppm", "ich_pde_mg_day", "bp_c", "density_g_ml",
+_SOURCED = ("ich_class", "ich_limit_ppm", "ich_pde_mg_day", "bp_c", "mp_c", "density_g_ml",
             "dielectric", "kt_alpha", "kt_beta", "kt_pi_star", "water_miscibility",
             "antisolvent", "default_pool")
 #: plausible ranges: (low, high), inclusive
 _RANGES = {
     "bp_c": (-50.0, 400.0),
+    "mp_c": (-200.0, 200.0),
     "density_g_ml": (0.3, 3.0),
     "dielectric": (1.0, 200.0),
     "kt_alpha": (0.0, 1.6),
@@ -89,6 +91,8 @@ class Solvent:
         Option-1 concentration limit [ppm] and permitted daily exposure [mg/day].
     bp_c : float
         Normal boiling point [°C].
+    mp_c : float or None
+        Melting (freezing) point [°C]; None when not recorded.
     density_g_ml : float
         Density [g/mL] at ``density_t_c`` [°C].
     dielectric : float
@@ -117,6 +121,7 @@ class Solvent:
     ich_pde_mg_day: float | None
     ich_note: str | None
     bp_c: float
+    mp_c: float | None
     density_g_ml: float
     density_t_c: float
     dielectric: float
@@ -150,7 +155,7 @@ class Solvent:
             "id": self.id, "name": self.name, "smiles": self.smiles, "family": self.family,
             "ich_class": self.ich_class, "ich_limit_ppm": self.ich_limit_ppm,
             "ich_pde_mg_day": self.ich_pde_mg_day, "ich_note": self.ich_note,
-            "bp_c": self.bp_c, "density_g_ml": self.density_g_ml,
+            "bp_c": self.bp_c, "mp_c": self.mp_c, "density_g_ml": self.density_g_ml,
             "density_t_c": self.density_t_c, "dielectric": self.dielectric,
             "dielectric_t_c": self.dielectric_t_c, "kt_alpha": self.kt_alpha,
             "kt_beta": self.kt_beta, "kt_pi_star": self.kt_pi_star,
@@ -372,6 +377,11 @@ def _entry(raw, label, refs, field_sources, fail) -> Solvent:
         if pde is not None and pde > 50.0:
             fail(f"class 3 PDE is 50 mg/day or less, got {pde:g}", sid, "ich_pde_mg_day")
 
+    bp = number("bp_c")
+    mp = number("mp_c", required=False)
+    if mp is not None and mp >= bp:
+        fail(f"melting point {mp:g} degC is not below the boiling point {bp:g} degC", sid,
+             "mp_c")
     density_t = number("density_t_c")
     dielectric_t = number("dielectric_t_c")
     for key, t in (("density_t_c", density_t), ("dielectric_t_c", dielectric_t)):
@@ -411,7 +421,8 @@ def _entry(raw, label, refs, field_sources, fail) -> Solvent:
 
     return Solvent(
         id=sid, name=name, smiles=smiles, family=family, ich_class=ich_class,
-        ich_limit_ppm=ppm, ich_pde_mg_day=pde, ich_note=ich_note, bp_c=number("bp_c"),
+        ich_limit_ppm=ppm, ich_pde_mg_day=pde, ich_note=ich_note, bp_c=bp,
+        mp_c=mp,
         density_g_ml=number("density_g_ml"), density_t_c=density_t,
         dielectric=number("dielectric"), dielectric_t_c=dielectric_t,
         kt_alpha=number("kt_alpha"), kt_beta=number("kt_beta"),

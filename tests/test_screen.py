@@ -225,8 +225,12 @@ def test_mode_solvent_misfits_are_dropped_with_reason():
     reasons = {(x["solvent"], x["mode"]): x["reason"] for x in d.dropped}
     assert "boiling point" in reasons[("dichloromethane", "cooling")]   # bp 39.6 °C
     assert "impractical" in reasons[("dmso", "evaporation")]            # bp 189 °C
-    assert {(w.solvent, w.mode) for w in d.wells} == {("dichloromethane", "evaporation"),
-                                                      ("dmso", "cooling")}
+    assert "melting point" in reasons[("dmso", "cooling")]              # mp 18.5 °C > 5 °C
+    assert {(w.solvent, w.mode) for w in d.wells} == {("dichloromethane", "evaporation")}
+    d = design(counterions=["besylate"], solvents=["water", "ethanol", "acetone"],
+               modes=["cooling"])
+    # water (mp 0, bp 100 °C) and ethanol (bp 78.3 °C) cool; acetone (bp 56.1 °C) does not
+    assert {w.solvent for w in d.wells} == {"water", "ethanol"}
 
 
 # --------------------------------------------------------------------------- solvents
@@ -401,9 +405,13 @@ def test_results_template_has_the_select_columns_and_one_row_per_well():
     rows = list(csv.reader(io.StringIO(results_template_csv(d))))
     assert tuple(rows[0]) == RESULTS_COLUMNS
     assert [r[0] for r in rows[1:]] == [w.well for w in d.wells]
+    # the select step reads the template once an outcome is filled in
     select_results = pytest.importorskip("saltplan.select_results")
-    parsed = select_results.parse_results(results_template_csv(d), d.to_dict())
-    assert len(parsed.not_reported) == len(d.wells)
+    rows[1][RESULTS_COLUMNS.index("outcome")] = "crystalline"
+    filled = "".join(",".join(r) + "\n" for r in rows)
+    parsed = select_results.parse_results(filled, d.to_dict())
+    assert [o.well for o in parsed.observations] == [rows[1][0]]
+    assert len(parsed.not_reported) == len(d.wells) - 1
 
 
 def test_same_input_same_bytes(tmp_path):
@@ -495,3 +503,72 @@ def test_real_library_sulfonic_acids_never_meet_alcohols_unflagged(real_lib):
             if w.counterion and slib.get(w.solvent).is_alcohol:
                 assert risky and "sulfonate_ester" in w.flags
         assert any(w.solvent == "acetone" and w.counterion for w in d.wells)
+
+
+# --------------------------------------------------------------------------- real plan, CLI
+# An invented basic compound of the fictional programme (tertiary amine + aryl amide).
+HX_SMILES = "CN1CCN(CC1)Cc1ccc(cc1)C(=O)Nc1ccccc1"
+
+
+@pytest.fixture(scope="module")
+def real_plan():
+    from saltplan.plan import plan_salts
+
+    return plan_salts(HX_SMILES, name="HX-204 (invented)")
+
+
+def test_design_from_the_real_plan(real_plan, real_lib):
+    d = design_screen(real_plan, 400, library=real_lib)
+    plan = real_plan.to_dict()
+    top = [(c["counterion"], c["stoichiometry"]) for c in plan["candidates"][:4]]
+    assert [(c["counterion"], c["stoichiometry"]) for c in d.candidates] == top
+    # API MW is the plan's (RDKit) free-form MW and every sample's mmol follows from it
+    for w in d.wells:
+        assert w.api_mmol == pytest.approx(w.api_mg / plan["parent"]["mw"], rel=1e-4)
+    slib = load_solvents()
+    for w in d.wells:
+        if w.counterion and "sulfonate_ester_risk" in real_lib.get(w.counterion).flags:
+            assert not slib.get(w.solvent).is_alcohol
+    assert d.totals["api_mg"] <= 400
+    json.dumps(d.to_dict(), allow_nan=False)
+
+
+def test_screen_cli_writes_files_and_exit_codes(cli, tmp_path):
+    out = tmp_path / "screen"
+    result = cli("screen", HX_SMILES, "--api-budget-mg", "400", "--out", out,
+                 "--name", "HX-204 (invented)")
+    assert result.exit_code == 0, result.output
+    assert "wells" in result.stdout and "wrote" in result.stdout
+    assert sorted(p.name for p in out.iterdir()) == ["design.json", "plate.csv",
+                                                     "results-template.csv", "worksheet.csv"]
+    # same input, same worksheet bytes
+    again = tmp_path / "again"
+    assert cli("screen", HX_SMILES, "--api-budget-mg", "400", "--out", again,
+               "--name", "HX-204 (invented)").exit_code == 0
+    for name in ("worksheet.csv", "plate.csv", "results-template.csv"):
+        assert (out / name).read_bytes() == (again / name).read_bytes()
+    # over budget: exit 1, one line saying what to cut, and no files
+    broke = tmp_path / "broke"
+    result = cli("screen", HX_SMILES, "--api-budget-mg", "20", "--out", broke)
+    assert result.exit_code == 1
+    assert "design needs" in result.stderr and "budget 20 mg" in result.stderr
+    assert len(result.stderr.strip().splitlines()) == 1
+    assert not broke.exists()
+    # a class-1 solvent is refused
+    result = cli("screen", HX_SMILES, "--api-budget-mg", "400", "--out", broke,
+                 "--solvent", "benzene")
+    assert result.exit_code == 1 and "class 1" in result.stderr
+
+
+def test_screen_cli_json_and_options(cli, tmp_path):
+    result = cli("screen", HX_SMILES, "--api-budget-mg", "2000", "--out", tmp_path / "v",
+                 "--scale", "vial", "--api-mg", "20", "--solvent", "acetone",
+                 "--solvent", "water", "--mode", "slurry", "--mode", "cooling",
+                 "--stock-molarity", "1.0", "--top", "2", "--json")
+    assert result.exit_code == 0, result.output
+    d = json.loads(result.stdout)
+    assert [s["id"] for s in d["solvents"]] == ["acetone", "water"]
+    assert {w["mode"] for w in d["wells"]} <= {"slurry", "cooling"}
+    assert all(w["well"].startswith("V") and w["api_mg"] == 20 for w in d["wells"])
+    assert d["settings"]["stock_molarity"] == {"value": 1.0, "provenance": "user",
+                                               "basis": "mol/L"}

@@ -103,6 +103,14 @@ def test_handbook_values(lib, sid, bp, density, eps):
     assert s.dielectric == pytest.approx(eps, rel=0.01)
 
 
+# CRC Handbook (from memory): melting points [degC]
+@pytest.mark.parametrize("sid,mp", [("water", 0.0), ("dmso", 18.5), ("acetic-acid", 16.6),
+                                    ("cyclohexane", 6.6), ("benzene", 5.5), ("ethanol", -114.1)])
+def test_melting_points(lib, sid, mp):
+    assert lib.get(sid).mp_c == pytest.approx(mp, abs=0.5)
+    assert all(s.mp_c is not None for s in lib)
+
+
 def test_kamlet_taft_orders_donors_and_acceptors(lib):
     # Marcus 1993 (from memory): water is the strongest donor of the set, alkanes neither
     # donate nor accept, DMSO is a strong acceptor and no donor.
@@ -190,6 +198,7 @@ def _write(tmp_path: Path, data) -> Path:
     ("hexane", "pool_note", None, "pool_note", "needs a pool_note"),
     ("ethanol", "antisolvent", "ethanol", "antisolvent", "its own anti-solvent"),
     ("ethanol", "antisolvent", "benzene", "antisolvent", "class 1"),
+    ("ethanol", "mp_c", 90.0, "mp_c", "not below the boiling point"),
 ])
 def test_entry_validation(tmp_path, sid, key, value, field, text):
     data = _builtin_data()

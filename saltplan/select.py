@@ -209,10 +209,10 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
     th = load_thresholds(thresholds)
     plan = d.get("plan") or {}
     if dose_mg is not None:
-        dose, dose_source = float(dose_mg), "given with the command (user)"
+        dose, dose_source = float(dose_mg), "user, given with the command"
     else:
         dose = (plan.get("inputs") or {}).get("dose_mg")
-        dose_source = "plan input (user)" if dose else "not given"
+        dose_source = "user, plan input" if dose else "not given"
     candidates = {(c.get("counterion"), c.get("stoichiometry")): c for c in plan.get("candidates") or []}
     order = {w["well"]: i for i, w in enumerate(d["wells"])}
 
@@ -433,8 +433,8 @@ def _tier2(obs, th: Thresholds, dose, dose_src) -> tuple[list[Evidence], str | N
                            f"{'≥' if ok else '<'} {need:.3g} mg/mL needed for {dose:g} mg in "
                            f"{t.value:g} mL", _wells(sol, ph),
                            low[0], "mg/mL", round(need, 4),
-                           provenance=f"measured (results file); required = dose ({dose_src}) / "
-                                      f"{t.value:g} mL",
+                           provenance=f"measured (results file); required = dose {dose:g} mg "
+                                      f"({dose_src}) / {t.value:g} mL",
                            source=f"{t.cite}; measured in water, not over pH 1.2–6.8 at 37 °C"))
     # solvate / hydrate
     solv = _values(obs, "solvent_content_pct")

@@ -30,10 +30,12 @@ def plan_summary(design: dict) -> dict[str, Any]:
     cands = []
     for c in (plan.get("candidates") or [])[:TOP_CANDIDATES]:
         cands.append({
-            "rank": c.get("rank"), "counterion": c.get("counterion"), "name": c.get("name"),
+            "rank": c.get("rank"), "counterion": c.get("counterion"),
+            "name": c.get("counterion_name") or c.get("name"),
             "stoichiometry": c.get("stoichiometry"), "delta_pka": c.get("delta_pka"),
             "category": c.get("category"), "drug_content": c.get("drug_content"),
-            "ph_max": c.get("ph_max"), "screened": c.get("counterion") in screened,
+            "ph_max": c.get("ph_max"), "ph_max_basis": c.get("ph_max_basis"),
+            "screened": c.get("counterion") in screened,
             "caveats": [_caveat_text(k) for k in c.get("caveats") or []],
         })
     sites = [{"kind": s.get("kind"), "pka": s.get("pka"), "uncertainty": s.get("uncertainty"),
@@ -164,8 +166,10 @@ def open_questions(chosen, design: dict, observations) -> list[dict[str, Any]]:
         cand = cands.get((g.counterion, g.stoichiometry)) or {}
         if cand.get("ph_max") is not None:
             out.append({"topic": "disproportionation", "form": g.id, "wells": ids, "text":
-                        f"{name}: estimated pHmax {cand['ph_max']:.1f} (plan, estimated): check the "
-                        "risk of conversion to the free form in the formulation microenvironment."})
+                        f"{name}: pHmax {cand['ph_max']:.1f} (estimated in the plan"
+                        + (f": {cand['ph_max_basis']}" if cand.get("ph_max_basis") else "")
+                        + "): measure it, and check the risk of conversion to the free form in "
+                        "the formulation microenvironment."})
         sulf = _sulfonate_alcohol_wells(ids, design)
         if sulf:
             out.append({"topic": "ICH M7", "form": g.id, "wells": list(sulf), "text":

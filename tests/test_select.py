@@ -710,3 +710,46 @@ def test_planner_round_trip(tmp_path):
     except ImportError as exc:  # the planner is being written in parallel
         pytest.skip(f"planner not available yet: {exc}")
     _round_trip(design, tmp_path / "s", tmp_path)
+
+
+# --------------------------------------------------------------------------- properties
+def test_any_valid_results_evaluate_traceably():
+    """Random in-range results (hypothesis): evaluation never fails, every finding names
+    wells of its form or of controls, and the shortlist does not depend on row order."""
+    from hypothesis import HealthCheck, given, settings
+    from hypothesis import strategies as st
+
+    design = fixture_design()
+    samples = [w["well"] for w in design["wells"] if w["kind"] == "sample"]
+    controls = [w["well"] for w in design["wells"] if w["kind"] == "control"]
+    num = lambda lo, hi: st.one_of(st.none(), st.floats(lo, hi, allow_nan=False).map(lambda v: round(v, 2)))
+    row = st.fixed_dictionaries({
+        "outcome": st.sampled_from(["crystalline", "crystalline", "amorphous", "oil", "gel",
+                                    "clear_solution"]),
+        "form_label": st.sampled_from(["", "A", "B", "FF-I"]),
+        "melting_onset_c": num(-50, 450), "weight_gain_80rh_pct": num(-5, 200),
+        "solubility_mg_ml": num(0, 1000), "saturated_ph": num(0, 14),
+        "stoichiometry_found": st.sampled_from(["", "1:1", "2:1", "1:2"]),
+        "solvent_content_pct": num(0, 100)})
+
+    @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+    @given(st.dictionaries(st.sampled_from(samples + controls), row, min_size=1), st.randoms())
+    def check(rows, rnd):
+        lines = []
+        for well, r in rows.items():
+            found = "" if well in controls else r["stoichiometry_found"]
+            cells = [well, r["outcome"], r["form_label"]] + [
+                "" if r[k] is None else repr(r[k]) for k in
+                ("melting_onset_c", "weight_gain_80rh_pct", "solubility_mg_ml", "saturated_ph")]
+            cells += [found, "" if r["solvent_content_pct"] is None else repr(r["solvent_content_pct"]), ""]
+            lines.append(",".join(cells))
+        sel = evaluate_results(design, parse_results(_csv(*lines), design))
+        for g in sel.shortlist + sel.not_shortlisted:
+            for e in g.evidence:
+                assert e.wells and set(e.wells) <= set(g.wells) | set(controls)
+        assert (sel.lead is None) == (sel.outcome == "no_lead")
+        rnd.shuffle(lines)
+        again = evaluate_results(design, parse_results(_csv(*lines), design))
+        assert [g.to_dict() for g in again.shortlist] == [g.to_dict() for g in sel.shortlist]
+
+    check()

@@ -258,6 +258,9 @@ def _delimiter(text: str) -> str:
 
 
 def _header(cells: list[str], origin: str, row: int) -> list[str]:
+    cells = list(cells)
+    while cells and not cells[-1].strip():  # trailing empty cells of a spreadsheet export
+        cells.pop()
     names: list[str] = []
     for i, raw in enumerate(cells, start=1):
         name = _norm_header(raw)
@@ -383,7 +386,6 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
     lines = _Lines(text)
     reader = csv.reader(lines, delimiter=delimiter, strict=True)
     header: list[str] | None = None
-    header_row = 0
     seen: dict[str, int] = {}
     found: dict[str, Observation] = {}
     try:
@@ -392,7 +394,7 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
             if not any(c.strip() for c in cells):
                 continue
             if header is None:
-                header, header_row = _header(cells, origin, row), row
+                header = _header(cells, origin, row)
                 continue
             if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
                 raise ResultsError(f"{len(cells)} cells but the header has {len(header)} columns",

@@ -303,6 +303,13 @@ def test_extra_cells_and_bad_encoding(design):
     assert "not UTF-8" in info.value.message
 
 
+def test_trailing_empty_columns_of_a_spreadsheet(design):
+    res = parse_results("well,outcome,,\nA1,oil,,\n", design)
+    assert res.observations[0].outcome == "oil"
+    err = _error("well,outcome,,\nA1,oil,,stray\n", design)
+    assert "header has 2 columns" in err.message and err.row == 2
+
+
 def test_bom_crlf_semicolon_decimal_comma(design, fixtures_dir):
     res = read_results(fixtures_dir / "results_semicolon_bom_crlf.csv", design)
     a1, b1 = res.observations

@@ -141,6 +141,10 @@ CAUTIONS = (
     "site's safety rules.",
     "Residual solvents follow ICH Q3C(R8); sulfonic acids with alcohols can form alkyl "
     "sulfonate esters, potential mutagenic impurities under ICH M7 - defer to qualified staff.",
+    "Counterion stocks are assumed to dissolve in the well's solvent at the stated molarity; "
+    "where one does not (metal hydroxides in organic solvents, most acids in hydrocarbons), "
+    "make the stocks in one volatile solvent (stock_solvent) and evaporate it before the "
+    "crystallization solvent is added.",
 )
 
 def _plan_dict(plan) -> dict:

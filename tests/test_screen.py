@@ -161,6 +161,23 @@ def test_antisolvent_volume_and_partner():
     assert w.antisolvent_ul == pytest.approx(2 * 200.0)   # 25 mg/mL -> 200 µL, ratio 2
 
 
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+
+@settings(max_examples=60, deadline=None)
+@given(api_mg=st.floats(0.5, 200), mw=st.floats(100, 900), eq=st.floats(0.4, 2.3),
+       molarity=st.floats(0.05, 5))
+def test_amounts_are_consistent(api_mg, mw, eq, molarity):
+    # definitions: mmol = mg / MW; µL stock x M / 1000 = mmol; µL neat x density = mg
+    solid = counterion_amounts(api_mg, mw, eq, BESYLATE, stock_molarity=molarity)
+    assert solid["counterion_mmol"] == pytest.approx(api_mg / mw * eq)
+    assert solid["stock_ul"] * molarity / 1000 == pytest.approx(solid["counterion_mmol"])
+    assert solid["counterion_mg"] == pytest.approx(solid["counterion_mmol"] * 158.17)
+    liquid = counterion_amounts(api_mg, mw, eq, MESYLATE, stock_molarity=molarity)
+    assert liquid["counterion_ul"] * 1.48 == pytest.approx(liquid["counterion_mg"])
+
+
 # --------------------------------------------------------------------------- risky combinations
 ALCOHOLS = ["ethanol", "methanol", "2-propanol"]
 
@@ -231,6 +248,20 @@ def test_mode_solvent_misfits_are_dropped_with_reason():
                modes=["cooling"])
     # water (mp 0, bp 100 °C) and ethanol (bp 78.3 °C) cool; acetone (bp 56.1 °C) does not
     assert {w.solvent for w in d.wells} == {"water", "ethanol"}
+
+
+def test_stock_solvent_counts_as_a_medium_for_the_rules():
+    # besylate from a methanol stock: the acid meets methanol even in an acetone well
+    d = design(counterions=["besylate", "fumarate"], solvents=["acetone"], modes=["slurry"],
+               stock_solvent="methanol")
+    assert not [w for w in d.wells if w.counterion == "besylate"]
+    assert any(x["rule"] == "sulfonate_ester" and "methanol" in x["reason"] for x in d.dropped)
+    w = next(w for w in d.wells if w.counterion == "fumarate")
+    assert w.stock_ul == pytest.approx(17.5)       # 2:1: 0.00875 mmol / 0.5 M
+    assert w.solvent_ul == pytest.approx(100.0)    # the stock solvent is evaporated first
+    assert d.totals["stocks"][0]["solvent"] == "methanol"
+    with pytest.raises(ParameterError, match="class 1"):
+        design(stock_solvent="benzene")
 
 
 # --------------------------------------------------------------------------- solvents

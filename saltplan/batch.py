@@ -62,13 +62,22 @@ def _parse_dose(text: str) -> float | None:
 
 
 def _parse_measured(text: str):
+    """A measured-pKa cell, values separated by ``;``: ``"9.1; 4.2"``, ``"base=9.1"``,
+    ``"12=9.1; acid=4.2"`` (syntax of :func:`saltplan.ionization.parse_measured`)."""
     if not text:
         return None
+    if "," in text:
+        raise ParameterError(f"measured pKa '{text}': separate values with ';' "
+                             "(a comma may be a decimal comma)")
+    parts = [p for p in (x.strip() for x in text.split(";")) if p]
+    if not parts:
+        return None
+    from .ionization import parse_measured
+
     try:
-        from .ionization import parse_measured
-    except ImportError:  # estimator not installed yet: our own reading of the same syntax
-        from .batch_input import parse_measured_text as parse_measured
-    return parse_measured(text)
+        return parse_measured(parts)
+    except ParameterError as exc:
+        raise ParameterError(exc.message.replace("--pka ", "measured pKa ", 1)) from None
 
 
 def _default_evaluator():
@@ -132,19 +141,17 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
     feasible = sorted((c for c in plan.get("candidates") or [] if c.get("feasible")),
                       key=lambda c: (c.get("rank", 0), c.get("counterion", "")))
     shown = feasible[:top]
-    caveats = []
-    for cav in plan.get("caveats") or []:        # about the API itself
-        item = (_SEVERITY_ORDER.get(cav.get("severity"), 3), cav.get("code", ""), "API",
-                cav.get("severity", ""))
-        if item not in caveats:
-            caveats.append(item)
-    for cand in shown:
-        for cav in cand.get("caveats") or []:
-            item = (_SEVERITY_ORDER.get(cav.get("severity"), 3), cav.get("code", ""),
-                    cand["counterion"], cav.get("severity", ""))
-            if item not in caveats:
-                caveats.append(item)
-    caveats.sort()
+    # caveat -> who it concerns ("API" first, then counterions in rank order)
+    caveats: dict[tuple[int, str, str], list[str]] = {}
+    sources = [("API", plan.get("caveats") or [])]
+    sources += [(c["counterion"], c.get("caveats") or []) for c in shown]
+    for who, items in sources:
+        for cav in items:
+            key = (_SEVERITY_ORDER.get(cav.get("severity"), 3), cav.get("code", ""),
+                   cav.get("severity", ""))
+            concerned = caveats.setdefault(key, [])
+            if who not in concerned:
+                concerned.append(who)
     verdict = plan.get("verdict") or {}
     return {
         "smiles": parent.get("smiles"),
@@ -159,7 +166,8 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
         "top_counterions": "; ".join(
             f"{c['counterion']} {c.get('stoichiometry', '1:1')} ΔpKa {c['delta_pka']:.1f}"
             for c in shown),
-        "caveats": "; ".join(f"{ion}: {code} ({sev})" for _o, code, ion, sev in caveats),
+        "caveats": "; ".join(f"{code} ({sev}): {', '.join(who)}"
+                             for (_o, code, sev), who in sorted(caveats.items())),
         "_top_ids": [c["counterion"] for c in shown],   # for the summary; not a column
     }
 

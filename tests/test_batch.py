@@ -19,7 +19,6 @@ import pandas as pd
 import pytest
 
 from saltplan.batch import COLUMNS, evaluate_many, iter_evaluate, run_batch, summarize_plan
-from saltplan.batch_input import parse_measured_text
 from saltplan.errors import InputFileError, ParameterError
 from saltplan.structure import read_structure
 
@@ -56,8 +55,8 @@ def standin_plan(smiles, *, name=None, dose_mg=None, measured=None, libraries=No
             atom = match[-1] if kind == "acid" else match[0]
             sites.append({"atom": atom, "kind": kind, "pka": pka, "group_id": group,
                           "provenance": "estimated"})
-    if isinstance(measured, list) and sites:
-        sites[0] = dict(sites[0], pka=measured[0], provenance="measured")
+    if measured and sites:  # [(selector, pKa), ...]: the first value replaces the first site
+        sites[0] = dict(sites[0], pka=measured[0][1], provenance="measured")
     cands = []
     for s in sites:
         if s["kind"] == "base":
@@ -123,7 +122,7 @@ def test_valid_csv_one_row_per_input_in_order():
     assert tea["most_basic_pka"] == 10.0 and pd.isna(tea["most_acidic_pka"])
     assert tea["sites"] == "base 10.0 (amine, est.)"
     assert tea["top_counterions"].startswith("hydrochloride 1:1 ΔpKa 16.0; mesylate 1:1 ΔpKa 11.9")
-    assert tea["caveats"] == "mesylate: sulfonate_ester_risk (warning)"
+    assert tea["caveats"] == "sulfonate_ester_risk (warning): mesylate"
     assert df.iloc[2]["verdict"] == "no_ionizable_site" and df.iloc[2]["n_feasible"] == 0
     assert df.iloc[5]["supplied_as"] == "hydrochloride"
     # measured pKa column: the stand-in marks its first site measured
@@ -266,14 +265,27 @@ def test_sdf_input_keeps_order_and_flags_bad_records(tmp_path):
 
 
 # --------------------------------------------------------------------------- measured pKa cells
-def test_parse_measured_text():
-    assert parse_measured_text("9.1; 4.2") == [9.1, 4.2]
-    assert parse_measured_text("base=9.1; acid=4.2") == {"base": 9.1, "acid": 4.2}
-    assert parse_measured_text("12=3.5") == {12: 3.5}
-    assert parse_measured_text(" ; ") is None
-    for bad in ("9,1", "base=x", "25", "9.1; base=4", "base=1; base=2"):
-        with pytest.raises(ParameterError):
-            parse_measured_text(bad)
+def _seen_measured(cell):
+    seen = []
+
+    def capture(smiles, *, measured=None, **kw):
+        seen.append(measured)
+        return standin_plan(smiles, **kw)
+
+    frame = pd.DataFrame({"smiles": ["CCN(CC)CC"], "pka": [cell]})
+    df = evaluate_many(frame, evaluator=capture)
+    return (seen[0] if seen else None), df["error"].iloc[0]
+
+
+def test_measured_pka_cells_are_parsed_or_flagged():
+    assert _seen_measured("9.1; 4.2") == ([(None, 9.1), (None, 4.2)], None)
+    assert _seen_measured("base=9.1; acid=4.2") == ([("base", 9.1), ("acid", 4.2)], None)
+    assert _seen_measured("3=10.5") == ([(3, 10.5)], None)
+    assert _seen_measured(" ; ") == (None, None)
+    for bad, words in (("9,1", "separate values with ';'"), ("base=x", "not a number"),
+                       ("25", "within"), ("nonsense_group=4", "not an atom index")):
+        measured, error = _seen_measured(bad)
+        assert measured is None and words in error and error.startswith("measured pKa")
 
 
 # --------------------------------------------------------------------------- streaming and engines
@@ -362,7 +374,7 @@ def test_summarize_plan_orders_sites_and_limits_top():
                             "acid 4.2 (carboxylic_acid, est.); acid 9.9 (phenol, est.)")
     assert out["most_basic_pka"] == 9.5 and out["most_acidic_pka"] == 4.2
     assert out["top_counterions"] == "a 1:2 ΔpKa 5.0" and out["n_feasible"] == 2
-    assert out["caveats"] == "a: y_serious (serious); API: x_warn (warning); a: z_info (info)"
+    assert out["caveats"] == "y_serious (serious): a; x_warn (warning): API; z_info (info): a"
 
 
 # --------------------------------------------------------------------------- writers

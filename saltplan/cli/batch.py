@@ -27,6 +27,8 @@ class _Progress:
 
     def close(self):
         if self.bar is not None:
+            self.bar.length = self.done  # the estimate counted lines; show the true end
+            self.bar.render_progress()
             self.bar.__exit__(None, None, None)
 
 

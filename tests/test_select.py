@@ -760,3 +760,51 @@ def test_any_valid_results_evaluate_traceably():
         assert [g.to_dict() for g in again.shortlist] == [g.to_dict() for g in sel.shortlist]
 
     check()
+
+
+# --------------------------------------------------------------------------- browser
+_PROBE = """<script>
+window.addEventListener('load', function () {
+  var res = performance.getEntriesByType('resource').map(function (r) { return r.name; });
+  var pre = document.createElement('pre'); pre.id = 'probe';
+  pre.textContent = JSON.stringify({resources: res, tables: document.querySelectorAll('table').length});
+  document.body.appendChild(pre);
+});
+</script>"""
+
+
+def _chrome_dom(html: str, tmp_path) -> dict:
+    import re
+    import shutil
+    import subprocess
+    from html import unescape
+
+    chromium = shutil.which("chromium") or shutil.which("chromium-browser")
+    if chromium is None:
+        pytest.skip("headless Chromium not found")
+    tmp_path.mkdir(parents=True, exist_ok=True)
+    page = tmp_path / "page.html"
+    # the probe needs scripts: drop the record's CSP in this copy only
+    html = re.sub(r'<meta http-equiv="Content-Security-Policy"[^>]*>', "", html)
+    page.write_text(html.replace("</body>", _PROBE + "</body>", 1), encoding="utf-8")
+    proc = subprocess.run([chromium, "--headless", "--no-sandbox", "--disable-gpu",
+                           "--disable-background-networking", f"--user-data-dir={tmp_path / 'p'}",
+                           "--virtual-time-budget=3000", "--dump-dom", page.as_uri()],
+                          capture_output=True, text=True, timeout=120)
+    m = re.search(r'<pre id="probe">(.*?)</pre>', proc.stdout, re.S)
+    assert m, proc.stderr[-1500:]
+    return json.loads(unescape(m.group(1)))
+
+
+@pytest.mark.slow
+@pytest.mark.browser
+def test_record_loads_offline_in_chromium(design, good, tmp_path):
+    from saltplan.select_report import render_decision_html
+
+    html = render_decision_html(evaluate_results(design, good))
+    assert "Content-Security-Policy" in html
+    seen = _chrome_dom(html, tmp_path)
+    assert seen["resources"] == [] and seen["tables"] >= 8
+    # negative control: the same probe sees a request when the page makes one
+    bad = html.replace("</h1>", '</h1><img src="http://127.0.0.1:9/x.png" alt="">', 1)
+    assert any("127.0.0.1:9" in r for r in _chrome_dom(bad, tmp_path / "b")["resources"])

@@ -2,7 +2,7 @@
 
 :func:`design_screen` turns a :class:`~saltplan.plan.Plan` into a :class:`ScreenDesign`: the
 top candidates (or the user's counterions) crossed with a diverse solvent set
-(:func:`saltplan.solvents.select_solvents`) and crystallization modes, plus free-form
+(:func:`saltplan.solvent_selection.select_solvents`) and crystallization modes, plus free-form
 controls; amounts per well (API mass, counterion equivalents, mass, neat volume from the
 density or stock volume from the molarity, solvent volume); an SBS 96-well map (A1–H12) at
 plate scale or a vial list at vial scale; totals checked against the API budget.
@@ -191,7 +191,8 @@ def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None =
         Counterion ids; every feasible stoichiometry of each in the plan is screened.
     solvents, n_solvents
         Solvent ids to use first and the total number (default 4, or as many as given);
-        the rest is chosen by max-min diversity (:func:`saltplan.solvents.select_solvents`).
+        the rest is chosen by max-min diversity
+        (:func:`saltplan.solvent_selection.select_solvents`).
     modes : sequence of str
         Crystallization modes, from :data:`MODES` (default slurry and evaporation).
     scale : {"plate", "vial"}
@@ -238,7 +239,8 @@ def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None =
     ParameterError
         Bad options, more than 96 wells at plate scale, a well over its capacity.
     """
-    from .solvents import SolventLibrary, load_solvents, select_solvents
+    from .solvent_selection import select_solvents
+    from .solvents import SolventLibrary, load_solvents
 
     pd = _plan_dict(plan)
     if scale not in SCALES:

@@ -19,7 +19,8 @@ from saltplan.screen import (MODES, PLATE_WELLS, counterion_amounts, design_scre
                              equivalents_for, write_screen)
 from saltplan.screen_output import (RESULTS_COLUMNS, plate_csv, results_template_csv,
                                     worksheet_csv)
-from saltplan.solvents import load_solvents, select_solvents
+from saltplan.solvent_selection import select_solvents
+from saltplan.solvents import load_solvents
 
 
 @dataclass(frozen=True)

@@ -201,6 +201,7 @@ class Candidate:
     caveats: tuple[Caveat, ...] = ()
     ph_max: float | None = None
     ph_max_basis: str | None = None
+    slurry_ph: float | None = None   # pH of the salt's own saturated solution (estimate)
     reason: str | None = None     # why excluded (infeasible), None when feasible
 
     @property
@@ -240,6 +241,7 @@ class Candidate:
             "breakdown": {k: round(v, 3) for k, v in self.breakdown.items()},
             "ph_max": None if self.ph_max is None else round(self.ph_max, 2),
             "ph_max_basis": self.ph_max_basis,
+            "slurry_ph": None if self.slurry_ph is None else round(self.slurry_ph, 2),
             "caveats": [c.to_dict() for c in self.caveats],
             "reason": self.reason,
         }

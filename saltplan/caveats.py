@@ -54,13 +54,15 @@ class ApiFeatures:
 
     primary_amines: tuple[int, ...]
     secondary_amines: tuple[int, ...]
+    aliphatic_secondary_amines: tuple[int, ...]
     alcohols: tuple[int, ...]
     quaternary: tuple[int, ...]
     net_charge: int
 
     @property
     def nucleophilic_amines(self) -> tuple[int, ...]:
-        return tuple(sorted(set(self.primary_amines) | set(self.secondary_amines)))
+        """Aliphatic primary and secondary amines (Michael donors); aryl amines excluded."""
+        return tuple(sorted(set(self.primary_amines) | set(self.aliphatic_secondary_amines)))
 
     @property
     def permanent_charge(self) -> bool:
@@ -70,6 +72,7 @@ class ApiFeatures:
     def to_dict(self) -> dict[str, Any]:
         return {"primary_amines": list(self.primary_amines),
                 "secondary_amines": list(self.secondary_amines),
+                "aliphatic_secondary_amines": list(self.aliphatic_secondary_amines),
                 "alcohols": list(self.alcohols), "quaternary": list(self.quaternary),
                 "net_charge": self.net_charge}
 
@@ -83,6 +86,7 @@ def api_features(mol) -> ApiFeatures:
     return ApiFeatures(
         primary_amines=_matches(mol, "primary_amine"),
         secondary_amines=_matches(mol, "secondary_amine"),
+        aliphatic_secondary_amines=_matches(mol, "aliphatic_secondary_amine"),
         alcohols=_matches(mol, "alcohol"),
         quaternary=quats,
         net_charge=net,

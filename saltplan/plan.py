@@ -213,7 +213,7 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     from .counterions import load_counterions
     from .ionization import ionizable_sites
     from .ranking import RankingConfig, load_ranking_config, rank, score_candidate
-    from .solubility import sketch
+    from .solubility import sketch, slurry_ph
     from .structure import read_structure
 
     dose_mg = _number(dose_mg, "dose (mg/day)", positive=True)
@@ -250,9 +250,12 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
         ion = library.get(cand.counterion)
         limiting = cand.limiting_transfer
         ph_max = sol.ph_max_for(limiting.api_atom, limiting.api_kind)
+        conc = sol.salt_mg_ml / parent.mw          # mol/L at the salt solubility (as free form)
         cand = replace(cand, ph_max=ph_max,
                        ph_max_basis=None if ph_max is None else
-                       f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}")
+                       f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}",
+                       slurry_ph=slurry_ph(limiting.api_kind, limiting.api_pka,
+                                           limiting.counterion_pka, conc))
         cavs, triggered = candidate_caveats(
             cand, ion, features, dose_mg=dose_mg, route=route, s0_mg_ml=sol.intrinsic.mg_ml,
             s0_basis=sol.intrinsic.method, api_mw=parent.mw,

@@ -12,6 +12,8 @@ score = Σ weight·term, each term in 0..1, bonuses added and penalties subtract
   triggers it (see :mod:`saltplan.caveats`);
 * ``hygroscopicity`` — tendency of the counterion's salts to take up water;
 * ``disproportionation`` — pHmax against a typical formulation microenvironment pH;
+* ``slurry_disproportionation`` — pHmax against the pH of the salt's own saturated solution
+  (depends on the counterion's strength, see :func:`saltplan.solubility.slurry_ph`);
 * ``stoichiometry`` — a stoichiometry the library does not list for that counterion, or a
   second-choice one (2:1, 1:2) next to a feasible 1:1 of the same counterion.
 
@@ -33,7 +35,8 @@ from .assessment import Candidate, Thresholds
 from .errors import ParameterError
 
 BREAKDOWN_KEYS = ("delta_pka_margin", "tier", "precedence", "mass", "liabilities",
-                  "hygroscopicity", "disproportionation", "stoichiometry")
+                  "hygroscopicity", "disproportionation", "slurry_disproportionation",
+                  "stoichiometry")
 #: sections whose keys are open (new flags, counterion ids, tiers may be added)
 _OPEN_SECTIONS = {"liability_penalties", "exposure_mg_day", "tier_scores",
                   "hygroscopicity_scores", "stoichiometry_scores"}
@@ -146,6 +149,8 @@ def _check(cfg: RankingConfig, origin: str) -> None:
                                  field=f"weights.{key}")
     if cfg.data["margin"]["saturation"] <= 0:
         raise ParameterError("must be > 0", file=origin, field="margin.saturation")
+    if cfg.data["slurry"]["span"] <= 0:
+        raise ParameterError("must be > 0", file=origin, field="slurry.span")
     if cfg.data["disproportionation"]["span"] <= 0:
         raise ParameterError("must be > 0", file=origin, field="disproportionation.span")
 
@@ -174,9 +179,24 @@ def disproportionation_risk(ph_max: float | None, counterion_role: str,
     return _clip01((ph_max - (d["microenvironment_ph"] - d["safe_margin"])) / d["span"])
 
 
+def slurry_risk(ph_max: float | None, slurry_ph: float | None, counterion_role: str,
+                cfg: RankingConfig) -> float:
+    """0..1: how far the salt's own slurry pH lies on the wrong side of its pHmax.
+
+    Counterion-specific: a weak acid gives a base salt a higher slurry pH than a strong acid
+    does, so its salt is closer to converting back to the free base (Serajuddin 2007).
+    """
+    if ph_max is None or slurry_ph is None:
+        return 0.0
+    d = cfg.data["slurry"]
+    if counterion_role == "acid":
+        return _clip01((slurry_ph + d["safe_margin"] - ph_max) / d["span"])
+    return _clip01((ph_max + d["safe_margin"] - slurry_ph) / d["span"])
+
+
 def precedence_score(counterion_id: str, cfg: RankingConfig) -> float:
     p = cfg.data["precedence"]
-    for level in ("very_frequent", "frequent", "occasional"):
+    for level in ("very_frequent", "frequent", "established", "rare"):
         if counterion_id in p[level]:
             return float(p["scores"][level])
     return float(p["scores"]["other"])
@@ -209,6 +229,7 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
     hyg = float(hyg_scores.get(str(getattr(ion, "hygroscopicity", None) or "unknown"),
                                hyg_scores.get("unknown", 0.0)))
     dispro = disproportionation_risk(candidate.ph_max, ion.role, cfg)
+    slurry = slurry_risk(candidate.ph_max, candidate.slurry_ph, ion.role, cfg)
     listed = tuple(getattr(ion, "stoichiometries", ()) or ())
     st = cfg.data["stoichiometry_scores"]
     if listed and candidate.stoichiometry not in listed:
@@ -225,6 +246,7 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
         "liabilities": -w["liabilities"] * liab,
         "hygroscopicity": -w["hygroscopicity"] * hyg,
         "disproportionation": -w["disproportionation"] * dispro,
+        "slurry_disproportionation": -w["slurry_disproportionation"] * slurry,
         "stoichiometry": -w["stoichiometry"] * stoich,
     }
     breakdown = {k: (0.0 if v == 0 else v) for k, v in breakdown.items()}  # no "-0.0"

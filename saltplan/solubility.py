@@ -84,6 +84,38 @@ def ph_max(kind: str, pka: float, s0: float, s_salt: float) -> float:
     return pka + shift if kind == "base" else pka - shift
 
 
+def slurry_ph(api_kind: str, api_pka: float, counterion_pka: float, conc_mol_l: float) -> float:
+    """Approximate pH of a saturated solution (slurry) of a 1:1 salt in water.
+
+    Salt of a base (BH⁺A⁻): the higher of ½(pKa_BH + pKa_HA) (weak acid and weak base) and
+    ½(pKa_BH − log10 C) (hydrolysis of BH⁺ alone, strong acids). Salt of an acid (A⁻ with a
+    protonated base or cation): the lower of ½(pKa_HA + pKa_BH) and
+    7 + ½·pKa_HA + ½·log10 C (hydrolysis of A⁻ alone, strong bases). A salt whose slurry pH
+    passes its pHmax converts to the free form in its own saturated solution.
+
+    Parameters
+    ----------
+    api_kind : str
+        "base" (salt with an acid counterion) or "acid".
+    api_pka, counterion_pka : float
+        Aqueous pKa values [pKa units] (bases: of the conjugate acid).
+    conc_mol_l : float
+        Salt concentration at saturation [mol/L].
+
+    References: textbook acid–base equilibria (Harris, Quantitative Chemical Analysis);
+    slurry pH against pHmax: Serajuddin 2007 (from memory).
+
+    >>> round(slurry_ph("base", 9.0, -6.0, 0.01), 2)   # strong acid: ½(9 + 2)
+    5.5
+    >>> round(slurry_ph("base", 9.0, 4.0, 0.01), 2)    # weak acid: ½(9 + 4)
+    6.5
+    """
+    log_c = math.log10(conc_mol_l)
+    if api_kind == "base":
+        return max(0.5 * (api_pka + counterion_pka), 0.5 * (api_pka - log_c))
+    return min(0.5 * (api_pka + counterion_pka), 7.0 + 0.5 * api_pka + 0.5 * log_c)
+
+
 # --------------------------------------------------------------------------- results
 @dataclass(frozen=True)
 class IntrinsicSolubility:

@@ -48,11 +48,15 @@ def fmt(value: Any, digits: int = 2, unit: str = "") -> str:
 
 
 def plain(value: Any) -> str:
-    """A value as one line of text: floats to 2 decimals, containers as compact JSON."""
+    """A value as one line of text: floats to 2 decimals, lists "a, b", dicts "k: v; k: v"."""
+    if isinstance(value, bool):
+        return "yes" if value else "no"
     if isinstance(value, float):
         return fmt(value, 2)
-    if isinstance(value, (dict, list)):
-        return json.dumps(value, ensure_ascii=False, sort_keys=False)
+    if isinstance(value, dict):
+        return "; ".join(f"{k}: {plain(v)}" for k, v in value.items()) or "—"
+    if isinstance(value, (list, tuple)):
+        return ", ".join(plain(v) for v in value) or "—"
     if value is None:
         return "—"
     return str(value)

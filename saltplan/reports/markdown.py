@@ -17,7 +17,9 @@ import re
 #: characters escaped wherever they appear: emphasis, code, links/images, HTML, tables,
 #: headings, strikethrough, entity references
 _ALWAYS = set("\\`*_[]<>#|~&{}")
-_LINE_START = re.compile(r"^(\s*)([-+=>]|\d+[.)])")
+#: block markers that need a following space (or the end) to start a list / setext heading
+_LINE_START = re.compile(r"^(\s*)([-+=]|\d{1,9}[.)])(?=\s|$)")
+_RULE = re.compile(r"^(\s*)([-=])(?=[-=\s]*$)")     # "---" thematic break, "===" setext
 _SCHEME = re.compile(r"([A-Za-z][A-Za-z0-9+.-]{1,31}):(?=//)")
 _WWW = re.compile(r"\b([wW]{3})\.")
 _MAILISH = re.compile(r"@")
@@ -48,6 +50,7 @@ def md_escape(value) -> str:
     text = _SCHEME.sub(lambda m: m.group(1) + "\\:", text)
     text = _WWW.sub(lambda m: m.group(1) + "\\.", text)
     text = _MAILISH.sub("\\@", text)
+    text = _RULE.sub(lambda m: m.group(1) + "\\" + m.group(2), text)
     text = _LINE_START.sub(lambda m: m.group(1) + "\\" + m.group(2) if len(m.group(2)) == 1
                            else m.group(1) + m.group(2)[:-1] + "\\" + m.group(2)[-1], text)
     return text

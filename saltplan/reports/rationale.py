@@ -23,6 +23,30 @@ def _site_phrase(s: dict) -> str:
     return f"a {s['group']} at atom {s['label']} ({s['kind']}, pKa {s['pka_text']}, {how})"
 
 
+def _num(x: float) -> str:
+    return f"{x:g}".replace("-", "−")
+
+
+def _dropped_groups(dropped: list[dict]) -> list[str]:
+    """Dropped screen combinations grouped by counterion, stoichiometry, solvent and reason."""
+    groups: dict[tuple, list[str]] = {}
+    for d in dropped:
+        key = (d.get("counterion") or "", d.get("stoichiometry") or "", d.get("solvent") or "",
+               d.get("reason") or "")
+        modes = groups.setdefault(key, [])
+        if d.get("mode") and d["mode"] not in modes:
+            modes.append(d["mode"])
+    out = []
+    for (cid, st, sv, reason), modes in groups.items():
+        what = " ".join(x for x in (cid, st) if x)
+        if sv:
+            what += f" in {sv}"
+        if modes:
+            what += f" ({', '.join(modes)})"
+        out.append(f"{what}: {reason}" if reason else what)
+    return out
+
+
 def _join(items: list[str]) -> str:
     if len(items) <= 1:
         return "".join(items)
@@ -69,12 +93,12 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
     if ctx["candidates"] or ctx["excluded"]:
         minimum = ctx["plan"]["inputs"].get("min_delta_pka")
         rule = ("Counterions were shortlisted by the ΔpKa rule, ΔpKa = pKa(protonated base) − "
-                f"pKa(acid) in water: salt expected at ΔpKa ≥ {th['salt_expected']:g}, likely "
-                f"at ≥ {th['likely']:g}, mixed salt/co-crystal behaviour down to "
-                f"{th['uncertain']:g} and co-crystals below ({th.get('source', '')}).")
+                f"pKa(acid) in water: salt expected at ΔpKa ≥ {_num(th['salt_expected'])}, likely "
+                f"at ≥ {_num(th['likely'])}, mixed salt/co-crystal behaviour down to "
+                f"{_num(th['uncertain'])} and co-crystals below ({th.get('source', '')}).")
         if minimum is not None:
             rule += (f" A stoichiometry was kept only when every proton transfer reached "
-                     f"ΔpKa ≥ {minimum:g}.")
+                     f"ΔpKa ≥ {_num(minimum)}.")
         keys = [p["label"] for p in ctx["breakdown_legend"]]
         if keys:
             rule += (" Feasible candidates were ranked by a score combining "
@@ -104,9 +128,9 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
         if solvents:
             text += f" across the solvents {_join([str(s) for s in solvents])}"
         text += "; solvents were chosen with their ICH Q3C class in view."
-        if screen["dropped"]:
+        if screen["raw_dropped"]:
             text += " Combinations left out of the screen: " + "; ".join(
-                f"{d['what']}, {d['reason']}" for d in screen["dropped"]) + "."
+                _dropped_groups(screen["raw_dropped"])) + "."
         out.append(text)
     out.append("All pKa values marked as estimates, and every ΔpKa derived from them, are "
                "planning figures, not measurements: pKa should be confirmed by potentiometric "

@@ -117,6 +117,7 @@ def screen_view(screen: dict | None) -> dict | None:
         "wells": [_well_row(w, numbers) for w in wells], "notes": notes,
         "n_samples": n_samples,
         "n_controls": len(wells) - n_samples,
+        "raw_dropped": [dict(d) for d in screen.get("dropped") or []],
         "dropped": [{"what": _combo(d), "reason": d.get("reason") or "",
                      "source": d.get("source") or ""} for d in screen.get("dropped") or []],
         "totals_rows": totals_rows, "ion_totals": ion_totals, "stocks": stocks,

@@ -240,7 +240,9 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     sol = sketch(parent.mol, sites, melting_point_c=melting_point_c,
                  intrinsic_mg_ml=intrinsic_solubility_mg_ml, salt_mg_ml=salt_solubility_mg_ml,
                  assumed_salt_mg_ml=float(cfg.data["solubility"]["assumed_salt_mg_ml"]))
-    raw = assess(parent, sites, library, min_delta_pka=min_delta_pka, thresholds=thresholds,
+    # sites outside the salt range (acid pKa > 12, base pKa < 1) are shown, not paired
+    relevant = tuple(s for s in sites if getattr(s, "salt_relevant", True))
+    raw = assess(parent, relevant, library, min_delta_pka=min_delta_pka, thresholds=thresholds,
                  slope=float(prob["slope"]), intercept=float(prob["intercept"]))
 
     settings_caveats = dict(cfg.caveat_settings)
@@ -266,7 +268,7 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
         scored.append(replace(cand, caveats=cavs, score=score, breakdown=breakdown))
     ranked, excluded = rank(scored)
 
-    verdict = _verdict(sites, ranked, excluded, library, features, min_delta_pka)
+    verdict = _verdict(sites, relevant, ranked, excluded, library, features, min_delta_pka)
     inputs = {
         "smiles": parent.smiles,
         "structure": parent.input,
@@ -311,7 +313,8 @@ def _fmt_site(site) -> str:
     return f"{group} (atom {site.atom}) pKa {site.pka:.1f}, {prov}"
 
 
-def _verdict(sites, ranked, excluded, library, features, min_delta_pka) -> dict[str, Any]:
+def _verdict(all_sites, sites, ranked, excluded, library, features,
+             min_delta_pka) -> dict[str, Any]:
     """Verdict code, one-paragraph text and alternatives."""
     alts: list[str] = []
     if ranked:
@@ -332,10 +335,14 @@ def _verdict(sites, ranked, excluded, library, features, min_delta_pka) -> dict[
                         "is a salt whatever the counterion; the ΔpKa rule does not apply.",
                 "alternatives": [ALTERNATIVES["exchange"]]}
     if not sites:
+        found = ""
+        if all_sites:
+            found = (" Found only " + "; ".join(_fmt_site(s) for s in all_sites)
+                     + ", outside the salt-forming range.")
         return {"code": "no_ionizable_site",
                 "text": "No ionizable site in the range that matters for salts (base pKa above "
-                        "about −2, acid pKa below about 16 were searched): a salt is not an "
-                        "option for this molecule as drawn.",
+                        "about 1, acid pKa below about 12): a salt is not an option for this "
+                        "molecule as drawn." + found,
                 "alternatives": [ALTERNATIVES[k] for k in ("cocrystal", "asd", "particle",
                                                            "prodrug")]}
     kinds = sorted({s.kind for s in sites})

@@ -96,6 +96,7 @@ def test_measured_pka_is_used_and_labelled():
     "CCCCCCCCCCCC",            # a hydrocarbon
     "c1ccc2ccccc2c1",          # naphthalene
     PROGESTERONE,              # a neutral steroid
+    "CCO",                     # ethanol, pKa about 16: too weak for salts (domain notes §2.4)
 ])
 def test_neutral_molecule_gives_no_salt_verdict(smiles):
     d = plan_salts(smiles).to_dict()

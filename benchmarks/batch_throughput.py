@@ -137,7 +137,8 @@ if {which!r} == "floor":
 t0 = time.perf_counter()
 res = run_batch({src!r}, {out!r}, summary={summary!r}, jobs={jobs}, evaluator=evaluator)
 dt = time.perf_counter() - t0
-print(res.rows, res.failed, dt, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+print(res.rows, res.failed, dt, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss,
+      resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss)
 """
 
 
@@ -147,11 +148,11 @@ def peak_memory(path: Path, rows: int, which: str, jobs: int, tmp: Path) -> dict
                          src=str(path), out=str(out), summary=str(summary), jobs=jobs)
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           check=True, cwd=str(ROOT))
-    n, failed, dt, rss_kib = done.stdout.split()
-    # with jobs > 1 the workers are separate processes: report the parent (reader/writer)
-    # and note that each worker's own peak is bounded by one chunk at a time.
+    n, failed, dt, rss_kib, child_kib = done.stdout.split()
+    # with jobs > 1 the workers are separate processes: the parent (reader, writer,
+    # summary) and the largest worker are reported separately
     return {"rows": int(n), "failed": int(failed), "seconds": float(dt),
-            "max_rss_mib": int(rss_kib) / 1024}
+            "max_rss_mib": int(rss_kib) / 1024, "worker_max_rss_mib": int(child_kib) / 1024}
 
 
 def main(argv=None) -> int:
@@ -160,6 +161,9 @@ def main(argv=None) -> int:
     ap.add_argument("--memory-rows", type=int, nargs="*", default=[5000, 50000])
     ap.add_argument("--memory-evaluator", choices=["plan", "floor"], default="plan")
     ap.add_argument("--jobs", type=int, default=os.cpu_count() or 1)
+    ap.add_argument("--memory-jobs", type=int, default=1,
+                    help="worker processes in the memory runs (1 = all in one process)")
+    ap.add_argument("--skip-throughput", action="store_true", help="memory runs only")
     ap.add_argument("--json", action="store_true", help="also print the figures as JSON")
     args = ap.parse_args(argv)
 
@@ -173,6 +177,8 @@ def main(argv=None) -> int:
         src = tmp / "in.csv"
         write_csv(src, smiles)
 
+        if args.skip_throughput:
+            smiles = smiles[:200]
         floor_s = time_floor(smiles)
         figures["floor_mol_per_s"] = args.rows / floor_s
         print(f"floor (parse + standardize + {len(FLOOR_SMARTS)} SMARTS), 1 core: "
@@ -189,7 +195,7 @@ def main(argv=None) -> int:
         except ImportError:
             have_plan = False
             print("plan_salts not available: batch-with-planner figures skipped")
-        if have_plan:
+        if have_plan and not args.skip_throughput:
             for jobs in sorted({1, args.jobs}):
                 dt, failed = time_batch(src, jobs)
                 per_core = args.rows / dt / jobs
@@ -206,10 +212,13 @@ def main(argv=None) -> int:
         for rows in args.memory_rows:
             path = tmp / f"mem_{rows}.csv"
             write_csv(path, benchmark_smiles(rows)[0])
-            m = peak_memory(path, rows, which, 1, tmp)
+            m = peak_memory(path, rows, which, args.memory_jobs, tmp)
             mem.append(m)
-            print(f"peak memory, streamed CLI path ({which} evaluator, jobs=1), {rows:,} rows: "
-                  f"{m['max_rss_mib']:.0f} MiB max RSS ({m['seconds']:.0f} s)")
+            workers = (f", largest worker {m['worker_max_rss_mib']:.0f} MiB"
+                       if args.memory_jobs > 1 else "")
+            print(f"peak memory, streamed CLI path ({which} evaluator, jobs={args.memory_jobs}), "
+                  f"{rows:,} rows: {m['max_rss_mib']:.0f} MiB max RSS{workers} "
+                  f"({m['seconds']:.0f} s, {m['failed']} rows with an error)", flush=True)
         figures["memory"] = mem
         if len(mem) >= 2:
             print(f"memory ratio {mem[-1]['rows']:,} / {mem[0]['rows']:,} rows: "

@@ -409,3 +409,104 @@ def test_plate_rejects_duplicate_well(screen):
     wells = screen["wells"] + [dict(screen["wells"][0])]
     with pytest.raises(ValueError, match="twice"):
         platemap.plate_grids(wells, {})
+
+
+# --------------------------------------------------------------------------- real planner
+@pytest.fixture(scope="module")
+def real():
+    """plan_salts + design_screen on the test structure (measured pyridine pKa, invented)."""
+    from saltplan.plan import plan_salts
+    from saltplan.screen import design_screen
+
+    plan = plan_salts(fx.SMILES, name="TST-7 (test compound)", dose_mg=100, measured={13: 5.2})
+    return plan, design_screen(plan, 400)
+
+
+@pytest.fixture(scope="module")
+def real_html(real):
+    plan, screen = real
+    return render_plan_html(plan, screen)
+
+
+def test_real_plan_numbers_are_traceable(real, real_html):
+    from markupsafe import escape
+
+    plan = real[0].to_dict()
+    assert plan["sites"], "the test structure has two basic sites"
+    for s in plan["sites"]:
+        assert f"{s['pka']:.2f}" in real_html
+        for step in s["steps"]:
+            assert escape(step["source"]) in real_html
+    assert "sp-prov-measured" in real_html and "sp-prov-estimated" in real_html
+    table = real_html[real_html.index('id="sp-candidates"'):real_html.index('id="sp-charts"')]
+    for c in plan["candidates"]:
+        assert escape(c["counterion"]) in table
+        for t in c["transfers"]:
+            assert escape(t["counterion_pka_source"]) in table
+    for c in plan["excluded"]:
+        assert escape(c["reason"]) in table
+    for ref in plan["references"]:
+        assert escape(ref["citation"]) in real_html
+
+
+def test_real_plan_verdict_first(real, real_html):
+    plan = real[0].to_dict()
+    verdict = real_html[real_html.index('id="sp-verdict"'):real_html.index('id="sp-structure"')]
+    from markupsafe import escape
+
+    assert escape(plan["verdict"]["text"]) in verdict
+    for c in plan["candidates"][:3]:
+        assert f"#{c['rank']}</span>" in verdict and escape(c["counterion"]) in verdict
+
+
+def test_real_screen_plate_matches_wells(real, real_html):
+    screen = real[1].to_dict()
+    plate = real_html[real_html.index('class="sp-plate"'):]
+    plate = plate[:plate.index("</table>")]
+    for w in screen["wells"]:
+        m = re.search(rf'<td class="sp-(\w+)[^"]*"[^>]*><span class="sp-well">{w["well"]}</span>',
+                      plate)
+        assert m and m.group(1) == w["kind"], w["well"]
+    for d in screen["dropped"]:
+        assert d["reason"].split("(")[0].strip() in real_html
+
+
+def test_real_reports_deterministic(real):
+    from saltplan.plan import plan_salts
+
+    plan, screen = real
+    again = plan_salts(fx.SMILES, name="TST-7 (test compound)", dose_mg=100, measured={13: 5.2})
+    a, b = plan.to_dict(), again.to_dict()
+    assert _strip_created(render_plan_markdown(a), a["provenance"]["created"]) == \
+        _strip_created(render_plan_markdown(b), b["provenance"]["created"])
+    assert render_plan_json(a).replace(a["provenance"]["created"], "") == \
+        render_plan_json(b).replace(b["provenance"]["created"], "")
+
+
+def test_real_no_site_plan():
+    from saltplan.plan import plan_salts
+
+    # an aryl ester-ether without acidic or basic group (general chemistry: neither esters
+    # nor aryl ethers ionize in water)
+    plan = plan_salts("CCOC(=O)c1ccc(OC)cc1", name="TST-9 neutral").to_dict()
+    assert plan["verdict"]["code"] == "no_ionizable_site"
+    html = render_plan_html(plan)
+    assert "no salt screen recommended" in html and 'id="sp-candidates"' not in html
+    for alt in plan["verdict"]["alternatives"]:
+        assert alt.split(":")[0].split("(")[0].strip() in html
+
+
+def test_real_vial_screen_has_no_plate(real):
+    from saltplan.screen import design_screen
+
+    vial = design_screen(real[0], 2000, scale="vial").to_dict()
+    html = render_plan_html(real[0], vial)
+    assert 'class="sp-plate"' not in html
+    assert all(f"<td>{w['well']}</td>" in html for w in vial["wells"])
+
+
+def test_write_report_objects(tmp_path, real):
+    plan, screen = real
+    paths = write_plan_report(plan, tmp_path, screen=screen)
+    assert json.loads(paths[2].read_text(encoding="utf-8")) == plan.to_dict()
+    assert "Screen design" in paths[1].read_text(encoding="utf-8")

@@ -123,13 +123,16 @@ def delta_pka_chart(rows: Sequence[dict], bands: Sequence[dict], minimum: float 
                     transform=ax.get_xaxis_transform(), ha="center", va="bottom",
                     fontsize=8, color="#333333")
         ys = list(range(len(rows)))
-        for y, row, v, e in zip(ys, rows, values, errs):
-            short = bool(row.get("shortlisted", True))
-            ax.barh(y, v, height=0.6, color=PALETTE[0] if short else "white",
-                    edgecolor=PALETTE[0], hatch=None if short else "////", lw=0.8, zorder=2)
-            if e:
-                ax.errorbar(v, y, xerr=e, fmt="none", ecolor="#000000", elinewidth=0.8,
-                            capsize=2, zorder=3)
+        short = [bool(r.get("shortlisted", True)) for r in rows]
+        for keep, fill, hatch in ((True, PALETTE[0], None), (False, "white", "////")):
+            idx = [i for i in ys if short[i] == keep]
+            if idx:
+                ax.barh(idx, [values[i] for i in idx], height=0.6, color=fill,
+                        edgecolor=PALETTE[0], hatch=hatch, lw=0.8, zorder=2)
+        idx = [i for i in ys if errs[i]]
+        if idx:
+            ax.errorbar([values[i] for i in idx], idx, xerr=[errs[i] for i in idx], fmt="none",
+                        ecolor="#000000", elinewidth=0.8, capsize=2, zorder=3)
         if minimum is not None:
             ax.axvline(minimum, color="#000000", lw=1.2, zorder=4)
             ax.text(minimum, -0.9 if rows else 0, f" minimum {minimum:g}", fontsize=7.5,

@@ -71,9 +71,18 @@ def site_views(plan: dict) -> list[dict]:
             "group": need(s, "group", where), "group_id": s.get("group_id") or "",
             "provenance": prov, "provenance_short": PROVENANCE_SHORT.get(prov, prov),
             "source": s.get("source") or "", "steps": steps,
+            "source_short": _short_source(s.get("source") or "", prov),
             "drawing_label": drawing.site_label(s),
         })
     return out
+
+
+def _short_source(source: str, provenance: str) -> str:
+    """First clause of a site's source, without a repeated "estimated:" prefix."""
+    text = source
+    if text.lower().startswith(provenance.lower() + ":"):
+        text = text[len(provenance) + 1:].strip()
+    return text.split(";")[0].strip()
 
 
 def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[dict]:
@@ -278,17 +287,29 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
     name = plan.get("name") or parent.get("name") or "unnamed compound"
     chart_list = []
     if graphics and (cands or excluded):
+        shown_c = _one_per_counterion(cands)[:CHART_MAX_SHORTLISTED]
+        shown_x = _one_per_counterion(sorted(
+            excluded, key=lambda c: (-float(c["delta_pka"]), c["counterion"],
+                                     c["stoichiometry"])))[:CHART_MAX_EXCLUDED]
         rows = [{"label": f"{c['counterion']} {c['stoichiometry']}",
                  "delta_pka": c["delta_pka"], "uncertainty": _dpka_uncertainty(c),
-                 "shortlisted": True} for c in cands]
+                 "shortlisted": True} for c in shown_c]
         rows += [{"label": f"{c['counterion']} {c['stoichiometry']} (excluded)",
                   "delta_pka": c["delta_pka"], "uncertainty": _dpka_uncertainty(c),
-                  "shortlisted": False} for c in excluded]
+                  "shortlisted": False} for c in shown_x]
+        n_ions = len({c["counterion"] for c in cands})
+        n_excl = len({c["counterion"] for c in excluded})
+        scope = (f"One bar per counterion (its best-ranked stoichiometry): {len(shown_c)} of "
+                 f"{n_ions} shortlisted counterions in rank order")
+        if excluded:
+            scope += f", {len(shown_x)} of {n_excl} excluded ones (highest ΔpKa first)"
+        scope += "; the tables above list every candidate. "
         chart_list.append({
             "id": "chart-dpka", "title": "ΔpKa per counterion against the category bands",
             "svg": charts.delta_pka_chart(rows, bands_of(th), plan["inputs"].get("min_delta_pka")),
-            "note": "Filled bars: shortlisted candidates; hatched: excluded. Error bars: "
-                    "± the estimate uncertainty of the API site (measured sites: none). "
+            "note": scope + "Filled bars: shortlisted; hatched: excluded. Error bars: "
+                    "± the estimate uncertainty of the API site of the limiting proton "
+                    "transfer (none when that site was measured). "
                     f"Bands: {th.get('source', '')}."})
     if graphics and sites:
         chart_list.append({
@@ -364,6 +385,21 @@ def _legend(cands: list[dict]) -> list[dict]:
             if p["value"] > 0:
                 entry["penalty"] = False
     return list(seen.values())
+
+
+CHART_MAX_SHORTLISTED = 20
+CHART_MAX_EXCLUDED = 8
+
+
+def _one_per_counterion(cands: list[dict]) -> list[dict]:
+    """First entry of each counterion, keeping the given order (rank, or ΔpKa for exclusions)."""
+    seen: set[str] = set()
+    out = []
+    for c in cands:
+        if c["counterion"] not in seen:
+            seen.add(c["counterion"])
+            out.append(c)
+    return out
 
 
 def _dpka_uncertainty(c: dict) -> float | None:

@@ -17,6 +17,8 @@ from __future__ import annotations
 
 import functools
 import math
+import re
+from collections import Counter
 from dataclasses import dataclass, field
 from typing import Any, Iterable, Sequence
 
@@ -27,7 +29,8 @@ THRESHOLD_SOURCE = ("rule of thumb ΔpKa ≥ 2–3 (common practice; Stahl & Wer
                     "ΔpKa < −1 almost only co-crystals (Cruz-Cabeza 2012)")
 PROBABILITY_SOURCE = ("P = clip(0.17·ΔpKa + 0.28, 0, 1), crystal-structure statistics "
                       "(Cruz-Cabeza, CrystEngComm 2012, 14, 6362; relation from memory)")
-MASS_SOURCE = "RDKit average atomic weights (IUPAC), from the combined salt SMILES"
+MASS_SOURCE = ("RDKit average atomic weights (IUPAC) of the salt species (API or API anion, "
+               "counterion or cation), summed per formula unit")
 
 #: metals that appear as cations in pharmaceutical salts (charge when the SMILES has none)
 _METAL_CHARGE = {"Li": 1, "Na": 1, "K": 1, "Rb": 1, "Cs": 1, "Mg": 2, "Ca": 2, "Sr": 2,
@@ -214,8 +217,7 @@ class Candidate:
     @property
     def sort_key(self):
         """Deterministic order: score desc, ΔpKa desc, counterion id, stoichiometry."""
-        return (-round(self.score, 9), -round(self.delta_pka, 9), self.counterion,
-                self.stoichiometry)
+        return ranking_key(self.score, self.delta_pka, self.counterion, self.stoichiometry)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -256,6 +258,14 @@ def parse_stoichiometry(text: str) -> tuple[int, int]:
     if left < 1 or right < 1:
         raise ParameterError(f"stoichiometry must be positive, got {text!r}")
     return left, right
+
+
+def ranking_key(score: float, dpka: float, counterion: str, stoichiometry: str) -> tuple:
+    """Sort key of the ranking: score desc, ΔpKa desc, counterion id, stoichiometry.
+
+    Rounded to 9 decimals so that float noise never decides a tie.
+    """
+    return (-round(score, 9), -round(dpka, 9), counterion, stoichiometry)
 
 
 # --------------------------------------------------------------------------- counterion access
@@ -455,6 +465,46 @@ def _mol_info(smiles: str) -> tuple[str, float]:
     return rdMolDescriptors.CalcMolFormula(mol), Descriptors.MolWt(mol)
 
 
+_FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
+
+
+@functools.lru_cache(maxsize=1024)
+def _formula_items(formula: str) -> tuple[tuple[str, int], ...]:
+    counts: Counter = Counter()
+    for el, n in _FORMULA_TOKEN.findall(re.sub(r"[+-]\d*$", "", formula)):
+        counts[el] += int(n) if n else 1
+    return tuple(counts.items())
+
+
+def _formula_counts(formula: str) -> Counter:
+    """Element counts of an RDKit Hill formula (a trailing charge such as "+" is ignored)."""
+    return Counter(dict(_formula_items(formula)))
+
+
+def hill_formula(counts: Counter) -> str:
+    """Hill order: C, H, then the others alphabetically (all alphabetical without carbon)."""
+    keys = sorted(k for k, v in counts.items() if v)
+    if "C" in keys:
+        keys = ["C"] + (["H"] if "H" in keys else []) + [k for k in keys if k not in ("C", "H")]
+    return "".join(f"{k}{counts[k] if counts[k] != 1 else ''}" for k in keys)
+
+
+def _combined(parts: Sequence[tuple[int, str]]) -> tuple[str, float]:
+    """Formula and MW of ``n`` copies of each component SMILES (additive, RDKit per part).
+
+    Equal to RDKit on the combined SMILES (formulas and average masses add up), but each
+    component is parsed once and cached.
+    """
+    counts: Counter = Counter()
+    mw = 0.0
+    for n, smi in parts:
+        formula, weight = _mol_info(smi)
+        for el, k in _formula_items(formula):
+            counts[el] += n * k
+        mw += n * weight
+    return hill_formula(counts), mw
+
+
 def _proton_bearer(mol, idx: int) -> int:
     """The atom that gives the proton: ``idx`` itself, else the nearest O/N/S with an H.
 
@@ -481,6 +531,7 @@ def _proton_bearer(mol, idx: int) -> int:
     return best[1]
 
 
+@functools.lru_cache(maxsize=256)
 def _deprotonated(parent_smiles: str, atoms: tuple[int, ...]) -> str:
     """SMILES of the API anion with one proton removed from each atom in ``atoms``."""
     from rdkit import Chem
@@ -508,8 +559,8 @@ def compose(parent_smiles: str, ion, option: Option) -> Composition:
 
     Acids and organic bases: the salt holds the same atoms as API + counterion (the proton
     moves). Metal and quaternary hydroxides: API minus the transferred protons plus the
-    cation (the hydroxide leaves as water). Formula and MW come from RDKit on the combined SMILES of
-    the salt species, so they are exact to RDKit's (IUPAC) atomic weights.
+    cation (the hydroxide leaves as water). Formula and MW come from RDKit for each species of the
+    salt (``salt_smiles``), summed: the same numbers RDKit gives for the combined SMILES.
 
     Drug content = n_API·MW(API)/MW(salt)·100 [% w/w free form].
     """
@@ -519,7 +570,7 @@ def compose(parent_smiles: str, ion, option: Option) -> Composition:
     if cation is None:
         ion_formula, ion_mw = _mol_info(ion.smiles)
         salt_smiles = ".".join([parent_smiles] * n_api + [ion.smiles] * n_ci)
-        formula, salt_mw = _mol_info(salt_smiles)
+        formula, salt_mw = _combined(((n_api, parent_smiles), (n_ci, ion.smiles)))
         display = _display(n_api, api_formula, n_ci, ion_formula)
         counterion_mass = n_ci * ion_mw / n_api
     else:
@@ -530,7 +581,7 @@ def compose(parent_smiles: str, ion, option: Option) -> Composition:
             per_copy[k % n_api].append(site.atom)
         anions = [_deprotonated(parent_smiles, tuple(atoms)) for atoms in per_copy]
         salt_smiles = ".".join(anions + [cation_smiles] * n_ci)
-        formula, salt_mw = _mol_info(salt_smiles)
+        formula, salt_mw = _combined([(1, a) for a in anions] + [(n_ci, cation_smiles)])
         cation_formula, cation_mw = _mol_info(cation_smiles)
         display = _display(n_api, _mol_info(anions[0])[0], n_ci, cation_formula)
         counterion_mass = n_ci * cation_mw / n_api

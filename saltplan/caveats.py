@@ -93,6 +93,7 @@ def api_features(mol) -> ApiFeatures:
     )
 
 
+@functools.lru_cache(maxsize=512)
 def counterion_secondary_amine(smiles: str) -> bool:
     """True when a counterion itself is a secondary amine (nitrosatable)."""
     from rdkit import Chem
@@ -145,7 +146,9 @@ _FLAG_TEXT = {
 def candidate_caveats(candidate: Candidate, ion, features: ApiFeatures, *,
                       dose_mg: float | None, route: str, s0_mg_ml: float | None,
                       s0_basis: str, api_mw: float, api_base_pka: float | None,
-                      settings: Mapping[str, Any]) -> tuple[tuple[Caveat, ...], tuple[str, ...]]:
+                      settings: Mapping[str, Any], ph_max: float | None = None,
+                      ph_max_basis: str | None = None
+                      ) -> tuple[tuple[Caveat, ...], tuple[str, ...]]:
     """Caveats of one candidate and the flags its API structure triggers.
 
     Parameters
@@ -164,6 +167,8 @@ def candidate_caveats(candidate: Candidate, ion, features: ApiFeatures, *,
         pKa of the API base site that forms the salt (acid counterions).
     settings : mapping
         The ``caveats`` section of the ranking configuration (thresholds, exposure limits).
+    ph_max, ph_max_basis : optional
+        pHmax of the candidate and its basis, when not yet stored on ``candidate``.
 
     Returns
     -------
@@ -235,14 +240,16 @@ def candidate_caveats(candidate: Candidate, ion, features: ApiFeatures, *,
             + ("; the acid is volatile and can be lost on drying" if "volatile_acid" in flags
                else "") + ".", f"{SERAJUDDIN}; domain notes §3"))
     micro = float(settings.get("microenvironment_ph", 6.5))
-    if candidate.ph_max is not None:
+    if ph_max is None:
+        ph_max, ph_max_basis = candidate.ph_max, candidate.ph_max_basis
+    if ph_max is not None:
         base_like = ion.role == "acid"
-        at_risk = candidate.ph_max < micro if base_like else candidate.ph_max > micro
+        at_risk = ph_max < micro if base_like else ph_max > micro
         if at_risk:
             side = "below" if base_like else "above"
             out.append(Caveat(
                 "ph_max", "warning",
-                f"pHmax {candidate.ph_max:.1f} ({candidate.ph_max_basis}) lies {side} a typical "
+                f"pHmax {ph_max:.1f} ({ph_max_basis}) lies {side} a typical "
                 f"formulation microenvironment pH of {micro:g}: conversion to the free form is "
                 "possible in the dosage form.", SERAJUDDIN))
 

@@ -11,6 +11,7 @@ A planning aid, not a measurement: see :data:`CAUTIONS`.
 """
 from __future__ import annotations
 
+import functools
 import json
 import math
 import os
@@ -208,11 +209,11 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     StructureError, ParameterError, CounterionLibraryError
     """
     from ._provenance import input_hash, provenance
-    from .assessment import assess
+    from .assessment import assess, ranking_key
     from .caveats import api_caveats, api_features, candidate_caveats
     from .counterions import load_counterions
     from .ionization import ionizable_sites
-    from .ranking import RankingConfig, load_ranking_config, rank, score_candidate
+    from .ranking import RankingConfig, load_ranking_config, rank_order, score_candidate
     from .solubility import sketch, slurry_ph
     from .structure import read_structure
 
@@ -231,7 +232,8 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
 
     parent = read_structure(structure, name=name, max_heavy_atoms=max_heavy_atoms)
     sites = tuple(ionizable_sites(parent, measured=measured))
-    library = libraries if hasattr(libraries, "hash") else load_counterions(libraries or None)
+    library = libraries if hasattr(libraries, "hash") else (
+        load_counterions(libraries) if libraries else _builtin_library())
     cfg = weights if isinstance(weights, RankingConfig) else load_ranking_config(weights)
     thresholds = cfg.thresholds
     prob = cfg.data["probability"]
@@ -247,26 +249,34 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
 
     settings_caveats = dict(cfg.caveat_settings)
     with_1_1 = {c.counterion for c in raw if c.stoichiometry == "1:1" and c.feasible}
+    conc = sol.salt_mg_ml / parent.mw            # mol/L at the salt solubility (as free form)
     scored = []
     for cand in raw:
         ion = library.get(cand.counterion)
         limiting = cand.limiting_transfer
         ph_max = sol.ph_max_for(limiting.api_atom, limiting.api_kind)
-        conc = sol.salt_mg_ml / parent.mw          # mol/L at the salt solubility (as free form)
-        cand = replace(cand, ph_max=ph_max,
-                       ph_max_basis=None if ph_max is None else
-                       f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}",
-                       slurry_ph=slurry_ph(limiting.api_kind, limiting.api_pka,
-                                           limiting.counterion_pka, conc))
+        fields = {
+            "ph_max": ph_max,
+            "ph_max_basis": None if ph_max is None else
+            f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}",
+            "slurry_ph": slurry_ph(limiting.api_kind, limiting.api_pka,
+                                   limiting.counterion_pka, conc),
+        }
         cavs, triggered = candidate_caveats(
             cand, ion, features, dose_mg=dose_mg, route=route, s0_mg_ml=sol.intrinsic.mg_ml,
             s0_basis=sol.intrinsic.method, api_mw=parent.mw,
             api_base_pka=limiting.api_pka if limiting.api_kind == "base" else None,
-            settings=settings_caveats)
-        score, breakdown = score_candidate(cand, ion, dose_mg=dose_mg, triggered_flags=triggered,
-                                           alternative=cand.counterion in with_1_1, cfg=cfg)
-        scored.append(replace(cand, caveats=cavs, score=score, breakdown=breakdown))
-    ranked, excluded = rank(scored)
+            settings=settings_caveats, ph_max=ph_max, ph_max_basis=fields["ph_max_basis"])
+        score, breakdown = score_candidate(
+            cand, ion, dose_mg=dose_mg, triggered_flags=triggered,
+            alternative=cand.counterion in with_1_1, cfg=cfg, ph_max=ph_max,
+            slurry_ph=fields["slurry_ph"])
+        fields.update(caveats=cavs, score=score, breakdown=breakdown)
+        key = ranking_key(score, cand.delta_pka, cand.counterion, cand.stoichiometry)
+        scored.append((_Keyed(cand.feasible, key), cand, fields))
+    good, bad = rank_order(scored, key=lambda x: x[0])
+    ranked = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(good, start=1)]
+    excluded = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(bad, start=len(ranked) + 1)]
 
     verdict = _verdict(sites, relevant, ranked, excluded, library, features, min_delta_pka)
     inputs = {
@@ -305,6 +315,22 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
         candidates=tuple(ranked), excluded=tuple(excluded), verdict=verdict, solubility=sol,
         caveats=api_caveats(features), thresholds=thresholds, settings=settings,
         cautions=CAUTIONS, references=REFERENCES, provenance=prov)
+
+
+@dataclass(frozen=True)
+class _Keyed:
+    """Feasibility and sort key of a candidate before it is built (see ranking.rank_order)."""
+
+    feasible: bool
+    sort_key: tuple
+
+
+@functools.lru_cache(maxsize=1)
+def _builtin_library():
+    """The built-in counterion library, loaded once per process."""
+    from .counterions import load_counterions
+
+    return load_counterions(None)
 
 
 def _fmt_site(site) -> str:

@@ -204,11 +204,13 @@ def precedence_score(counterion_id: str, cfg: RankingConfig) -> float:
 
 def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
                     triggered_flags: Iterable[str] = (), alternative: bool = False,
-                    cfg: RankingConfig | None = None) -> tuple[float, dict[str, float]]:
+                    cfg: RankingConfig | None = None, ph_max: float | None = None,
+                    slurry_ph: float | None = None) -> tuple[float, dict[str, float]]:
     """Score and signed breakdown (weight × term; penalties negative) of one candidate.
 
     ``alternative`` marks a non-1:1 stoichiometry of a counterion whose 1:1 salt is also
-    feasible (a second-choice experiment).
+    feasible (a second-choice experiment). ``ph_max`` and ``slurry_ph`` default to the
+    candidate's own values.
     """
     cfg = cfg or load_ranking_config()
     w = cfg.data["weights"]
@@ -228,8 +230,10 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
     hyg_scores = cfg.data["hygroscopicity_scores"]
     hyg = float(hyg_scores.get(str(getattr(ion, "hygroscopicity", None) or "unknown"),
                                hyg_scores.get("unknown", 0.0)))
-    dispro = disproportionation_risk(candidate.ph_max, ion.role, cfg)
-    slurry = slurry_risk(candidate.ph_max, candidate.slurry_ph, ion.role, cfg)
+    ph_max = candidate.ph_max if ph_max is None else ph_max
+    slurry_ph = candidate.slurry_ph if slurry_ph is None else slurry_ph
+    dispro = disproportionation_risk(ph_max, ion.role, cfg)
+    slurry = slurry_risk(ph_max, slurry_ph, ion.role, cfg)
     listed = tuple(getattr(ion, "stoichiometries", ()) or ())
     st = cfg.data["stoichiometry_scores"]
     if listed and candidate.stoichiometry not in listed:
@@ -260,8 +264,16 @@ def order(candidates: Iterable[Candidate]) -> list[Candidate]:
 
 def rank(candidates: Iterable[Candidate]) -> tuple[list[Candidate], list[Candidate]]:
     """Split scored candidates into (feasible ranked 1…n, excluded ranked n+1…)."""
-    feasible = order(c for c in candidates if c.feasible)
-    excluded = order(c for c in candidates if not c.feasible)
+    feasible, excluded = rank_order(candidates, key=lambda c: c)
     ranked = [replace(c, rank=i) for i, c in enumerate(feasible, start=1)]
     start = len(ranked) + 1
     return ranked, [replace(c, rank=i) for i, c in enumerate(excluded, start=start)]
+
+
+def rank_order(items: Iterable, key) -> tuple[list, list]:
+    """(feasible, infeasible) items, each in ranking order; ``key(item)`` gives the
+    scored Candidate-like object (``feasible``, ``sort_key``)."""
+    items = list(items)
+    feasible = sorted((x for x in items if key(x).feasible), key=lambda x: key(x).sort_key)
+    excluded = sorted((x for x in items if not key(x).feasible), key=lambda x: key(x).sort_key)
+    return feasible, excluded

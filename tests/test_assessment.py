@@ -399,3 +399,34 @@ def test_sketch_labels_assumed_salt_solubility():
     d = sk2.to_dict()
     assert d["s0_provenance"] == "user" and d["salt_solubility_basis"] == "user"
     assert len(d["profile"]) == 19 and d["profile"][0]["ph"] == 1.0
+
+
+def test_summed_formula_and_mw_equal_rdkit_on_the_combined_smiles():
+    # regression against RDKit itself (general-purpose reference library): every composition
+    # of a few APIs with the built-in library equals CalcMolFormula/MolWt of its salt SMILES
+    from rdkit import Chem
+    from rdkit.Chem import Descriptors, rdMolDescriptors
+
+    from saltplan.counterions import load_counterions
+
+    library = load_counterions()
+    cases = [(DIPHENHYDRAMINE, [site(1, "base", 9.0)]),
+             (ACETIC, [site(3, "acid", 4.76)]),
+             (NS(smiles="C1CNCCN1"), [site(1, "base", 9.73), site(4, "base", 5.35)]),
+             (NS(smiles="OC(=O)CCC(=O)O"), [site(0, "acid", 4.2), site(7, "acid", 5.6)])]
+    n = 0
+    for parent, sites in cases:
+        for cand in A.assess(parent, sites, library):
+            mol = Chem.MolFromSmiles(cand.salt_smiles)
+            assert cand.formula == rdMolDescriptors.CalcMolFormula(mol), cand
+            assert cand.salt_mw == pytest.approx(Descriptors.MolWt(mol), abs=1e-6)
+            n += 1
+    assert n > 60
+
+
+def test_choline_salt_holds_the_cation():
+    # choline benzoate: C5H14NO+ (104.17) + C7H5O2− (121.11) = 225.29 g/mol (CRC weights)
+    choline = ion("choline", "C[N+](C)(C)CCO.[OH-]", "base", [13.9])
+    cand = A.assess(NS(smiles="OC(=O)c1ccccc1"), [site(0, "acid", 4.2)], [choline])[0]
+    assert cand.formula == "C12H19NO3"
+    assert cand.salt_mw == pytest.approx(225.29, abs=0.02)

@@ -72,17 +72,22 @@ def site_views(plan: dict) -> list[dict]:
             "provenance": prov, "provenance_short": PROVENANCE_SHORT.get(prov, prov),
             "source": s.get("source") or "", "steps": steps,
             "source_short": _short_source(s.get("source") or "", prov),
+            "source_clean": _strip_prefix(s.get("source") or "", prov),
             "drawing_label": drawing.site_label(s),
         })
     return out
 
 
+def _strip_prefix(source: str, provenance: str) -> str:
+    """A site's source without a leading "estimated:" that repeats its provenance."""
+    if source.lower().startswith(provenance.lower() + ":"):
+        return source[len(provenance) + 1:].strip()
+    return source
+
+
 def _short_source(source: str, provenance: str) -> str:
-    """First clause of a site's source, without a repeated "estimated:" prefix."""
-    text = source
-    if text.lower().startswith(provenance.lower() + ":"):
-        text = text[len(provenance) + 1:].strip()
-    return text.split(";")[0].strip()
+    """First clause of a site's source (the rule), for the summary table."""
+    return _strip_prefix(source, provenance).split(";")[0].strip()
 
 
 def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[dict]:
@@ -115,6 +120,7 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
                 "api_pka": fmt(t.get("api_pka")), "api_provenance": prov,
                 "api_provenance_short": PROVENANCE_SHORT.get(prov, prov),
                 "api_source": t.get("api_pka_source") or "",
+                "api_source_short": _short_source(t.get("api_pka_source") or "", prov),
                 "counterion_pka": fmt(t.get("counterion_pka")),
                 "counterion_source": t.get("counterion_pka_source") or "",
                 "delta_pka": fmt(t.get("delta_pka")),
@@ -149,6 +155,10 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
             "bar_svg": charts.score_bar([(p["key"], p["value"]) for p in parts],
                                         scale=max(top, positive_total)),
             "caveats": caveats, "top_caveat": caveats[0] if caveats else None,
+            "caveats_major": [cv for cv in caveats if cv.get("severity") in ("serious", "warning")],
+            "n_minor": sum(1 for cv in caveats if cv.get("severity") not in ("serious", "warning")),
+            "parts_nonzero": [p for p in parts if p["value"] != 0],
+            "n_zero_parts": sum(1 for p in parts if p["value"] == 0),
             "transfers": transfers, "api_sites": [site_label.get(a, str(a))
                                                   for a in c.get("api_sites") or []],
             "ph_max_text": fmt(c.get("ph_max")), "ph_max_basis": c.get("ph_max_basis") or "",

@@ -15,26 +15,20 @@ References
 """
 from __future__ import annotations
 
-import functools
 import math
-import re
-from collections import Counter
 from dataclasses import dataclass, field
 from typing import Any, Iterable, Sequence
 
 from .errors import ParameterError
+from .stoichiometry import (  # noqa: F401 - re-exported: part of this module's public API
+    MASS_SOURCE, Composition, Option, compose, counterion_pkas, hill_formula, is_cation_base,
+    parse_stoichiometry, pka_source, salt_pka, salt_pka_index, stoichiometry_options)
 
 CATEGORIES = ("salt_expected", "likely", "uncertain", "unlikely")
 THRESHOLD_SOURCE = ("rule of thumb ΔpKa ≥ 2–3 (common practice; Stahl & Wermuth 2011); "
                     "ΔpKa < −1 almost only co-crystals (Cruz-Cabeza 2012)")
 PROBABILITY_SOURCE = ("P = clip(0.17·ΔpKa + 0.28, 0, 1), crystal-structure statistics "
                       "(Cruz-Cabeza, CrystEngComm 2012, 14, 6362; relation from memory)")
-MASS_SOURCE = ("RDKit average atomic weights (IUPAC) of the salt species (API or API anion, "
-               "counterion or cation), summed per formula unit")
-
-#: metals that appear as cations in pharmaceutical salts (charge when the SMILES has none)
-_METAL_CHARGE = {"Li": 1, "Na": 1, "K": 1, "Rb": 1, "Cs": 1, "Mg": 2, "Ca": 2, "Sr": 2,
-                 "Ba": 2, "Zn": 2, "Al": 3, "Fe": 2, "Cu": 2, "Bi": 3}
 
 
 # --------------------------------------------------------------------------- the rule
@@ -164,20 +158,6 @@ class Transfer:
 
 
 @dataclass(frozen=True)
-class Composition:
-    """Formula and masses of one salt species (per formula unit)."""
-
-    n_api: int
-    n_counterion: int
-    salt_smiles: str
-    formula: str                  # Hill formula of the whole formula unit (RDKit)
-    formula_display: str          # "(C17H21NO)·HCl"-style: components with multipliers
-    salt_mw: float                # g/mol
-    drug_content: float           # % w/w of free form = n·MW(API)/MW(salt)·100
-    counterion_mass_per_api: float  # g of counterion moiety delivered per mol API
-
-
-@dataclass(frozen=True)
 class Candidate:
     """A counterion × stoichiometry option for the API (see DEVELOPERS.md contract)."""
 
@@ -249,344 +229,12 @@ class Candidate:
         }
 
 
-def parse_stoichiometry(text: str) -> tuple[int, int]:
-    """"2:1" → (2, 1): API molecules and counterion units per formula unit."""
-    try:
-        left, right = (int(x) for x in str(text).split(":"))
-    except ValueError:
-        raise ParameterError(f"stoichiometry must look like '1:1' or '2:1', got {text!r}") from None
-    if left < 1 or right < 1:
-        raise ParameterError(f"stoichiometry must be positive, got {text!r}")
-    return left, right
-
-
 def ranking_key(score: float, dpka: float, counterion: str, stoichiometry: str) -> tuple:
     """Sort key of the ranking: score desc, ΔpKa desc, counterion id, stoichiometry.
 
     Rounded to 9 decimals so that float noise never decides a tie.
     """
     return (-round(score, 9), -round(dpka, 9), counterion, stoichiometry)
-
-
-# --------------------------------------------------------------------------- counterion access
-def counterion_pkas(ion) -> tuple[float, ...]:
-    return tuple(float(p) for p in (getattr(ion, "pka", None) or ()))
-
-
-def salt_pka_index(ion) -> int | None:
-    """Index (in the ascending pKa tuple) of the pKa the ΔpKa rule uses for this counterion.
-
-    Acids: the first (lowest) pKa; bases: the conjugate-acid pKa, i.e. the highest. When the
-    library states ``pka_for_salt`` the matching entry is used.
-    """
-    pkas = counterion_pkas(ion)
-    if not pkas:
-        return None
-    stated = getattr(ion, "pka_for_salt", None)
-    if stated is not None:
-        best = min(range(len(pkas)), key=lambda i: (abs(pkas[i] - float(stated)), i))
-        if abs(pkas[best] - float(stated)) < 1e-6:
-            return best
-    return 0 if ion.role == "acid" else len(pkas) - 1
-
-
-def salt_pka(ion) -> float | None:
-    stated = getattr(ion, "pka_for_salt", None)
-    if stated is not None:
-        return float(stated)
-    i = salt_pka_index(ion)
-    return None if i is None else counterion_pkas(ion)[i]
-
-
-def pka_source(ion, index: int | None) -> str:
-    sources = getattr(ion, "pka_sources", None) or ()
-    if index is not None and 0 <= index < len(sources):
-        return str(sources[index])
-    if len(sources) == 1:
-        return str(sources[0])
-    return f"counterion library entry '{ion.id}'"
-
-
-@functools.lru_cache(maxsize=512)
-def _cation_of(smiles: str) -> tuple[str, int] | None:
-    """(cation SMILES, charge) of a hydroxide-supplied base or a bare metal ion, else None.
-
-    Metal hydroxides and quaternary hydroxides (``[Na+].[OH-]``, ``[Ca+2].[OH-].[OH-]``,
-    ``C[N+](C)(C)CCO.[OH-]``) give salts of the cation; the hydroxide leaves as water.
-    Organic amines (``NCCO``) and ammonia are not cations here: the proton moves to them.
-    """
-    from rdkit import Chem
-
-    frags = smiles.split(".")
-    others = [f for f in frags if f.replace(" ", "") not in ("[OH-]", "O[H-]")]
-    if len(set(others)) != 1:
-        return None
-    cation = others[0]
-    mol = Chem.MolFromSmiles(cation)
-    if mol is None:
-        return None
-    charge = Chem.GetFormalCharge(mol)
-    if len(others) < len(frags) and charge > 0:
-        return cation, charge
-    if mol.GetNumAtoms() == 1:
-        sym = mol.GetAtomWithIdx(0).GetSymbol()
-        if sym in _METAL_CHARGE:
-            charge = charge or _METAL_CHARGE[sym]
-            return f"[{sym}+{charge if charge > 1 else ''}]", charge
-    return None
-
-
-def is_cation_base(ion) -> bool:
-    """True for metal and quaternary hydroxides: their salts hold the bare cation."""
-    return _cation_of(ion.smiles) is not None
-
-
-# --------------------------------------------------------------------------- stoichiometry
-@dataclass(frozen=True)
-class Option:
-    """A stoichiometry before masses: who gives which proton to whom."""
-
-    stoichiometry: str
-    n_api: int
-    n_counterion: int
-    pairs: tuple[tuple[Any, int], ...]   # (API site, counterion pKa index) per proton transfer
-    delta_pkas: tuple[float, ...]
-
-    @property
-    def limiting(self) -> float:
-        return min(self.delta_pkas)
-
-
-def _site_order(sites, kind):
-    chosen = [s for s in sites if s.kind == kind]
-    if kind == "base":
-        return sorted(chosen, key=lambda s: (-s.pka, s.atom))
-    return sorted(chosen, key=lambda s: (s.pka, s.atom))
-
-
-def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> list[Option]:
-    """The stoichiometries worth considering for one counterion.
-
-    Parameters
-    ----------
-    sites : sequence of Site
-        The API's sites (acids and bases).
-    ion : Counterion
-        A library entry; its role decides which API sites it pairs with.
-    min_delta_pka : float
-        ΔpKa a *second* proton transfer must reach before 2:1 / 1:2 salts are proposed.
-
-    Returns
-    -------
-    list of Option
-        Always the 1:1 salt with the strongest opposite site (also when infeasible, so that it
-        can be reported as excluded); "k:1" (k API per counterion) when the counterion's next
-        pKa values also clear ``min_delta_pka`` (diacids: 2:1 salts, the 1:1 being the
-        hydrogen salt; diamines likewise); "2:1" for divalent metal cations with a monoacidic
-        drug (and "1:1" when the API's second acidic site qualifies); "1:2" bis-salts when
-        the API's second site clears the rule with a monoprotic counterion.
-        Empty when the API has no site of the opposite role or the counterion has no pKa.
-
-    Notes
-    -----
-    Stoichiometry rules: Stahl & Wermuth 2011 (common practice); see domain notes §3.
-    """
-    pkas = counterion_pkas(ion)
-    first = salt_pka_index(ion)
-    if first is None:
-        return []
-    api_kind = "base" if ion.role == "acid" else "acid"
-    ordered = _site_order(sites, api_kind)
-    if not ordered:
-        return []
-    s1 = ordered[0]
-    s2 = ordered[1] if len(ordered) > 1 else None
-
-    def dp(site, idx):
-        value = salt_pka(ion) if idx == first else pkas[idx]
-        if ion.role == "acid":
-            return delta_pka(site.pka, value)
-        return delta_pka(value, site.pka)
-
-    # next counterion pKa values in the order protons are given/taken
-    if ion.role == "acid":
-        further = list(range(first + 1, len(pkas)))
-    else:
-        further = list(range(first - 1, -1, -1))
-    cation = _cation_of(ion.smiles)
-    options: list[Option] = []
-
-    if cation is not None and cation[1] >= 2:
-        valence = cation[1]
-        # one metal ion takes `valence` protons; from `valence` API molecules ...
-        idx = [first] + further[: valence - 1]
-        idx += [idx[-1]] * (valence - len(idx))
-        options.append(Option(f"{valence}:1", valence, 1, tuple((s1, i) for i in idx),
-                              tuple(dp(s1, i) for i in idx)))
-        # ... or from one API with enough acidic sites (dianion + Ca²⁺)
-        if valence == 2 and s2 is not None:
-            pairs = ((s1, idx[0]), (s2, idx[1]))
-            deltas = tuple(dp(s, i) for s, i in pairs)
-            if min(deltas) >= min_delta_pka:
-                options.append(Option("1:1", 1, 1, pairs, deltas))
-        return options
-
-    options.append(Option("1:1", 1, 1, ((s1, first),), (dp(s1, first),)))
-    n_protons = getattr(ion, "n_protons", None)
-    polyprotic = [first] + (further if cation is None else [])
-    if n_protons:
-        polyprotic = polyprotic[: int(n_protons)]
-    # k API per counterion: the counterion's k-th pKa must also qualify against the API site
-    for k in range(2, len(polyprotic) + 1):
-        idx = polyprotic[:k]
-        deltas = tuple(dp(s1, i) for i in idx)
-        if deltas[-1] < min_delta_pka:
-            break
-        options.append(Option(f"{k}:1", k, 1, tuple((s1, i) for i in idx), deltas))
-    # bis-salt: the API's second site with a second (monoprotic) counterion
-    monoprotic = len(polyprotic) == 1 or (cation is not None and cation[1] == 1)
-    if s2 is not None and monoprotic:
-        pairs = ((s1, first), (s2, first))
-        deltas = tuple(dp(s, i) for s, i in pairs)
-        if min(deltas) >= min_delta_pka:
-            options.append(Option("1:2", 1, 2, pairs, deltas))
-    return options
-
-
-# --------------------------------------------------------------------------- composition
-@functools.lru_cache(maxsize=1024)
-def _mol_info(smiles: str) -> tuple[str, float]:
-    from rdkit import Chem
-    from rdkit.Chem import Descriptors, rdMolDescriptors
-
-    mol = Chem.MolFromSmiles(smiles)
-    if mol is None:
-        raise ParameterError(f"cannot parse SMILES '{smiles}' while computing a salt formula")
-    return rdMolDescriptors.CalcMolFormula(mol), Descriptors.MolWt(mol)
-
-
-_FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
-
-
-@functools.lru_cache(maxsize=1024)
-def _formula_items(formula: str) -> tuple[tuple[str, int], ...]:
-    counts: Counter = Counter()
-    for el, n in _FORMULA_TOKEN.findall(re.sub(r"[+-]\d*$", "", formula)):
-        counts[el] += int(n) if n else 1
-    return tuple(counts.items())
-
-
-def _formula_counts(formula: str) -> Counter:
-    """Element counts of an RDKit Hill formula (a trailing charge such as "+" is ignored)."""
-    return Counter(dict(_formula_items(formula)))
-
-
-def hill_formula(counts: Counter) -> str:
-    """Hill order: C, H, then the others alphabetically (all alphabetical without carbon)."""
-    keys = sorted(k for k, v in counts.items() if v)
-    if "C" in keys:
-        keys = ["C"] + (["H"] if "H" in keys else []) + [k for k in keys if k not in ("C", "H")]
-    return "".join(f"{k}{counts[k] if counts[k] != 1 else ''}" for k in keys)
-
-
-def _combined(parts: Sequence[tuple[int, str]]) -> tuple[str, float]:
-    """Formula and MW of ``n`` copies of each component SMILES (additive, RDKit per part).
-
-    Equal to RDKit on the combined SMILES (formulas and average masses add up), but each
-    component is parsed once and cached.
-    """
-    counts: Counter = Counter()
-    mw = 0.0
-    for n, smi in parts:
-        formula, weight = _mol_info(smi)
-        for el, k in _formula_items(formula):
-            counts[el] += n * k
-        mw += n * weight
-    return hill_formula(counts), mw
-
-
-def _proton_bearer(mol, idx: int) -> int:
-    """The atom that gives the proton: ``idx`` itself, else the nearest O/N/S with an H.
-
-    A site may be reported on the acidic centre rather than the H-bearing atom (the carbonyl
-    carbon of a carboxylic acid, a tetrazole carbon); the nearest heteroatom within three
-    bonds that still carries a hydrogen gives the proton.
-    """
-    from rdkit import Chem
-
-    if mol.GetAtomWithIdx(idx).GetTotalNumHs() > 0:
-        return idx
-    dist = Chem.GetDistanceMatrix(mol)
-    best = None
-    for atom in mol.GetAtoms():
-        j = atom.GetIdx()
-        d = dist[idx][j]
-        if 0 < d <= 3 and atom.GetSymbol() in ("O", "N", "S") and atom.GetTotalNumHs() > 0 \
-                and atom.GetFormalCharge() <= 0:
-            key = (d, j)
-            best = key if best is None or key < best else best
-    if best is None:
-        raise ParameterError(f"acidic site at atom {idx} has no hydrogen to give within three "
-                             "bonds; cannot draw its salt", field="sites")
-    return best[1]
-
-
-@functools.lru_cache(maxsize=256)
-def _deprotonated(parent_smiles: str, atoms: tuple[int, ...]) -> str:
-    """SMILES of the API anion with one proton removed from each atom in ``atoms``."""
-    from rdkit import Chem
-
-    mol = Chem.RWMol(Chem.MolFromSmiles(parent_smiles))
-    for idx in atoms:
-        atom = mol.GetAtomWithIdx(_proton_bearer(mol, idx))
-        hs = atom.GetTotalNumHs()
-        atom.SetNoImplicit(True)
-        atom.SetNumExplicitHs(hs - 1)
-        atom.SetFormalCharge(atom.GetFormalCharge() - 1)
-    Chem.SanitizeMol(mol)
-    return Chem.MolToSmiles(mol)
-
-
-def _display(n_api: int, api_formula: str, n_ci: int, ion_formula: str) -> str:
-    """"C17H21NO·HCl", "(C17H21NO)2·H2SO4", "C17H21NO·2HCl", "(C2H3O2-)2·Ca+2"."""
-    left = api_formula if n_api == 1 else f"({api_formula}){n_api}"
-    right = ion_formula if n_ci == 1 else f"{n_ci}{ion_formula}"
-    return f"{left}·{right}"
-
-
-def compose(parent_smiles: str, ion, option: Option) -> Composition:
-    """Formula, salt MW and drug content of one stoichiometry.
-
-    Acids and organic bases: the salt holds the same atoms as API + counterion (the proton
-    moves). Metal and quaternary hydroxides: API minus the transferred protons plus the
-    cation (the hydroxide leaves as water). Formula and MW come from RDKit for each species of the
-    salt (``salt_smiles``), summed: the same numbers RDKit gives for the combined SMILES.
-
-    Drug content = n_API·MW(API)/MW(salt)·100 [% w/w free form].
-    """
-    api_formula, api_mw = _mol_info(parent_smiles)
-    cation = _cation_of(ion.smiles)
-    n_api, n_ci = option.n_api, option.n_counterion
-    if cation is None:
-        ion_formula, ion_mw = _mol_info(ion.smiles)
-        salt_smiles = ".".join([parent_smiles] * n_api + [ion.smiles] * n_ci)
-        formula, salt_mw = _combined(((n_api, parent_smiles), (n_ci, ion.smiles)))
-        display = _display(n_api, api_formula, n_ci, ion_formula)
-        counterion_mass = n_ci * ion_mw / n_api
-    else:
-        cation_smiles, _charge = cation
-        # protons leave API copy by copy: a 2:1 calcium salt takes one from each of two APIs
-        per_copy: list[list[int]] = [[] for _ in range(n_api)]
-        for k, (site, _) in enumerate(option.pairs):
-            per_copy[k % n_api].append(site.atom)
-        anions = [_deprotonated(parent_smiles, tuple(atoms)) for atoms in per_copy]
-        salt_smiles = ".".join(anions + [cation_smiles] * n_ci)
-        formula, salt_mw = _combined([(1, a) for a in anions] + [(n_ci, cation_smiles)])
-        cation_formula, cation_mw = _mol_info(cation_smiles)
-        display = _display(n_api, _mol_info(anions[0])[0], n_ci, cation_formula)
-        counterion_mass = n_ci * cation_mw / n_api
-    return Composition(n_api, n_ci, salt_smiles, formula, display, salt_mw,
-                       100.0 * n_api * api_mw / salt_mw, counterion_mass)
 
 
 # --------------------------------------------------------------------------- assessment

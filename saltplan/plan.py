@@ -16,7 +16,7 @@ import json
 import math
 import os
 from dataclasses import dataclass, replace
-from typing import Any, Mapping, Sequence
+from typing import Any, Mapping
 
 from .errors import ParameterError
 

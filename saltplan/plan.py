@@ -209,12 +209,13 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     StructureError, ParameterError, CounterionLibraryError
     """
     from ._provenance import input_hash, provenance
-    from .assessment import assess, ranking_key
+    from .assessment import (MASS_SOURCE, PROBABILITY_SOURCE, THRESHOLD_SOURCE, assess,
+                             ranking_key)
     from .caveats import api_caveats, api_features, candidate_caveats
     from .counterions import load_counterions
     from .ionization import ionizable_sites
     from .ranking import RankingConfig, load_ranking_config, rank_order, score_candidate
-    from .solubility import sketch, slurry_ph
+    from .solubility import PHMAX_SOURCE, SLURRY_SOURCE, sketch, slurry_ph
     from .structure import read_structure
 
     dose_mg = _number(dose_mg, "dose (mg/day)", positive=True)
@@ -305,6 +306,16 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
         "dose_for_mass_basis": "user" if dose_mg is not None else "assumed (no dose given)",
         "microenvironment_ph": cfg.data["disproportionation"]["microenvironment_ph"],
         "tie_breaks": "score desc, ΔpKa desc, counterion id, stoichiometry",
+        "sources": {
+            "delta_pka": "API pKa per site (see sites and transfers); counterion pKa from the "
+                         "library entry (transfers.counterion_pka_source)",
+            "category": THRESHOLD_SOURCE,
+            "probability": PROBABILITY_SOURCE,
+            "salt_mw_drug_content": MASS_SOURCE,
+            "ph_max": PHMAX_SOURCE,
+            "slurry_ph": SLURRY_SOURCE,
+            "score": f"weights {cfg.source} (common practice; see the file's header)",
+        },
     }
     digest = input_hash(json.dumps(inputs, sort_keys=True, ensure_ascii=False),
                         library.hash, cfg.hash)

@@ -29,6 +29,9 @@ LOGP_SOURCE = "RDKit Crippen MolLogP (Wildman & Crippen 1999)"
 PHMAX_SOURCE = ("Henderson–Hasselbalch with a salt solubility plateau: base pHmax = pKa + "
                 "log10(S0/S_salt), acid pHmax = pKa − log10(S0/S_salt) (Streng 1984; "
                 "Serajuddin 2007; from memory)")
+SLURRY_SOURCE = ("pH of the salt's saturated solution from textbook acid–base equilibria "
+                 "at the (given or assumed) salt solubility; compared with pHmax "
+                 "(Serajuddin 2007; from memory)")
 #: pH grid of the profile: 1.0, 1.5, … 10.0
 DEFAULT_PH_GRID = tuple(round(1.0 + 0.5 * i, 1) for i in range(19))
 

@@ -260,3 +260,22 @@ def test_cli_errors_are_one_line(cli, tmp_path):
     assert r.exit_code == 2
     r = cli("plan", "C1CC")
     assert r.exit_code == 1 and "SMILES" in r.stderr
+
+
+def test_user_library_adds_and_overrides(fixtures_dir):
+    lib = fixtures_dir / "library_small.yaml"
+    if not lib.exists():
+        pytest.skip("fixture library_small.yaml not present")
+    base = plan_salts(DIPHENHYDRAMINE, measured={"base": 8.98})
+    mine = plan_salts(DIPHENHYDRAMINE, measured={"base": 8.98}, libraries=[str(lib)])
+    assert mine.provenance["library_hash"] != base.provenance["library_hash"]
+    ms = [c for c in mine.candidates if c.counterion == "mesylate"][0]
+    assert ms.transfers[0].counterion_pka == -1.2          # the in-house value wins
+    assert any(c.counterion == "propionate" for c in mine.candidates)
+    assert mine.to_dict()["inputs"]["libraries"] == [str(lib)]
+
+
+def test_repr_html_delegates_to_reports():
+    pytest.importorskip("saltplan.reports")
+    html = plan_salts(DIPHENHYDRAMINE)._repr_html_()
+    assert "hydrochloride" in html

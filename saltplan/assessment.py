@@ -141,6 +141,7 @@ class Transfer:
     counterion_pka_index: int     # index in the counterion's ascending pKa tuple
     counterion_pka_source: str
     delta_pka: float
+    note: str | None = None       # e.g. how a zwitterion takes part
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -154,6 +155,7 @@ class Transfer:
             "counterion_pka_index": self.counterion_pka_index,
             "counterion_pka_source": self.counterion_pka_source,
             "delta_pka": round(self.delta_pka, 2),
+            "note": self.note,
         }
 
 
@@ -273,8 +275,8 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
                          counterion_pka=(salt_pka(ion) if i == salt_pka_index(ion)
                                          else counterion_pkas(ion)[i]),
                          counterion_pka_index=i, counterion_pka_source=pka_source(ion, i),
-                         delta_pka=d)
-                for (site, i), d in zip(opt.pairs, opt.delta_pkas))
+                         delta_pka=d, note=opt.notes[k] if opt.notes else None)
+                for k, ((site, i), d) in enumerate(zip(opt.pairs, opt.delta_pkas)))
             feasible = limiting >= min_delta_pka
             sites_used = tuple(dict.fromkeys(site.atom for site, _ in opt.pairs))
             out.append(Candidate(

@@ -216,6 +216,7 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     from .ionization import ionizable_sites
     from .ranking import RankingConfig, load_ranking_config, rank_order, score_candidate
     from .solubility import PHMAX_SOURCE, SLURRY_SOURCE, sketch, slurry_ph
+    from .solubility import ph_max as solubility_ph_max
     from .structure import read_structure
 
     dose_mg = _number(dose_mg, "dose (mg/day)", positive=True)
@@ -255,18 +256,21 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     for cand in raw:
         ion = library.get(cand.counterion)
         limiting = cand.limiting_transfer
-        ph_max = sol.ph_max_for(limiting.api_atom, limiting.api_kind)
+        # the salt of an acid counterion behaves as a base salt (also for a zwitterion,
+        # whose carboxylate-type site takes the proton), and vice versa
+        ph_max = solubility_ph_max("base" if ion.role == "acid" else "acid", limiting.api_pka,
+                                   sol.intrinsic.mg_ml, sol.salt_mg_ml)
         fields = {
             "ph_max": ph_max,
             "ph_max_basis": None if ph_max is None else
             f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}",
-            "slurry_ph": slurry_ph(limiting.api_kind, limiting.api_pka,
+            "slurry_ph": slurry_ph("base" if ion.role == "acid" else "acid", limiting.api_pka,
                                    limiting.counterion_pka, conc),
         }
         cavs, triggered = candidate_caveats(
             cand, ion, features, dose_mg=dose_mg, route=route, s0_mg_ml=sol.intrinsic.mg_ml,
             s0_basis=sol.intrinsic.method, api_mw=parent.mw,
-            api_base_pka=limiting.api_pka if limiting.api_kind == "base" else None,
+            api_base_pka=limiting.api_pka if ion.role == "acid" else None,
             settings=settings_caveats, ph_max=ph_max, ph_max_basis=fields["ph_max_basis"])
         score, breakdown = score_candidate(
             cand, ion, dose_mg=dose_mg, triggered_flags=triggered,

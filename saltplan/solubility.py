@@ -253,20 +253,26 @@ def ph_profile(s0: float, *, base_pka: float | None = None, acid_pka: float | No
     """pH–solubility profile [(pH, free form, with salt plateau)] in the units of ``s0``.
 
     The free-form curve adds the ionized fractions of the most basic and the most acidic
-    site; with a salt solubility the total is capped by the salt plateau on each side
+    site (for a zwitterion the cation forms below the acid pKa and the anion above the base
+    pKa); with a salt solubility the total is capped by the salt plateau on each side
     (``S_salt·(1 + 10^(pH − pKa))`` for a base salt, mirrored for an acid salt), which meets
     the free-form curve at pHmax.
     """
+    # cationic side below the lower pKa, anionic side above the upper one; for a zwitterion
+    # (base pKa above acid pKa) the carboxylate-type site protonates first
+    cat_pka, an_pka = base_pka, acid_pka
+    if base_pka is not None and acid_pka is not None and base_pka > acid_pka:
+        cat_pka, an_pka = acid_pka, base_pka
     rows = []
     for ph in grid:
-        free = s0 * (1.0 + (10.0 ** (base_pka - ph) if base_pka is not None else 0.0)
-                     + (10.0 ** (ph - acid_pka) if acid_pka is not None else 0.0))
+        free = s0 * (1.0 + (10.0 ** (cat_pka - ph) if cat_pka is not None else 0.0)
+                     + (10.0 ** (ph - an_pka) if an_pka is not None else 0.0))
         total = free
         if s_salt is not None:
-            if base_pka is not None:
-                total = min(total, s_salt * (1.0 + 10.0 ** (ph - base_pka)))
-            if acid_pka is not None:
-                total = min(total, s_salt * (1.0 + 10.0 ** (acid_pka - ph)))
+            if cat_pka is not None:
+                total = min(total, s_salt * (1.0 + 10.0 ** (ph - cat_pka)))
+            if an_pka is not None:
+                total = min(total, s_salt * (1.0 + 10.0 ** (an_pka - ph)))
             total = max(total, s0)
         rows.append((float(ph), free, total))
     return tuple(rows)

@@ -134,6 +134,11 @@ class Option:
     n_counterion: int
     pairs: tuple[tuple[Any, int], ...]   # (API site, counterion pKa index) per proton transfer
     delta_pkas: tuple[float, ...]
+    bearers: tuple[int, ...] = ()        # atom that gains/loses the proton in the drawing
+    notes: tuple[str | None, ...] = ()
+
+    def bearer(self, k: int) -> int:
+        return self.bearers[k] if self.bearers else self.pairs[k][0].atom
 
     @property
     def limiting(self) -> float:
@@ -145,6 +150,32 @@ def _site_order(sites, kind):
     if kind == "base":
         return sorted(chosen, key=lambda s: (-s.pka, s.atom))
     return sorted(chosen, key=lambda s: (s.pka, s.atom))
+
+
+def salt_sites(sites: Sequence, counterion_role: str) -> list[tuple[Any, int, str | None]]:
+    """API sites in the order a counterion of ``counterion_role`` reaches them.
+
+    Returns ``(site whose pKa enters ΔpKa, atom that gains/loses the proton, note)``.
+    An acid counterion protonates basic sites (most basic first), a base deprotonates
+    acidic sites (most acidic first). A zwitterion (most basic pKa above the most acidic
+    one) is internally ionized in its neutral form: an acid must protonate the carboxylate-
+    type site (its pKa enters ΔpKa) and a base must take the proton of the ammonium-type
+    site (its pKa enters ΔpKa, the drawn anion loses the acidic H).
+    """
+    bases = _site_order(sites, "base")
+    acids = _site_order(sites, "acid")
+    zwitterion = bool(bases and acids and bases[0].pka > acids[0].pka)
+    if counterion_role == "acid":
+        if zwitterion:
+            note = (f"zwitterion: the base site (atom {bases[0].atom}, pKa {bases[0].pka:.1f}) is "
+                    f"already protonated; the acid must protonate atom {acids[0].atom}")
+            return [(acids[0], acids[0].atom, note)] + [(b, b.atom, None) for b in bases[1:]]
+        return [(b, b.atom, None) for b in bases]
+    if zwitterion:
+        note = (f"zwitterion: the acidic site (atom {acids[0].atom}, pKa {acids[0].pka:.1f}) is "
+                f"already ionized; the base must take the proton of atom {bases[0].atom}")
+        return [(bases[0], acids[0].atom, note)] + [(a, a.atom, None) for a in acids[1:]]
+    return [(a, a.atom, None) for a in acids]
 
 
 def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> list[Option]:
@@ -178,12 +209,11 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
     first = salt_pka_index(ion)
     if first is None:
         return []
-    api_kind = "base" if ion.role == "acid" else "acid"
-    ordered = _site_order(sites, api_kind)
+    ordered = salt_sites(sites, ion.role)
     if not ordered:
         return []
-    s1 = ordered[0]
-    s2 = ordered[1] if len(ordered) > 1 else None
+    s1, b1, n1 = ordered[0]
+    s2, b2, n2 = ordered[1] if len(ordered) > 1 else (None, None, None)
 
     def dp(site, idx):
         value = salt_pka(ion) if idx == first else pkas[idx]
@@ -200,40 +230,41 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
     cation = _cation_of(ion.smiles)
     options: list[Option] = []
 
+    def opt(label, n_api, n_ci, pairs, bearers, notes):
+        return Option(label, n_api, n_ci, tuple(pairs), tuple(dp(s, i) for s, i in pairs),
+                      tuple(bearers), tuple(notes))
+
     if cation is not None and cation[1] >= 2:
         valence = cation[1]
         # one metal ion takes `valence` protons; from `valence` API molecules ...
         idx = [first] + further[: valence - 1]
         idx += [idx[-1]] * (valence - len(idx))
-        options.append(Option(f"{valence}:1", valence, 1, tuple((s1, i) for i in idx),
-                              tuple(dp(s1, i) for i in idx)))
+        options.append(opt(f"{valence}:1", valence, 1, [(s1, i) for i in idx],
+                           [b1] * valence, [n1] * valence))
         # ... or from one API with enough acidic sites (dianion + Ca²⁺)
         if valence == 2 and s2 is not None:
-            pairs = ((s1, idx[0]), (s2, idx[1]))
-            deltas = tuple(dp(s, i) for s, i in pairs)
-            if min(deltas) >= min_delta_pka:
-                options.append(Option("1:1", 1, 1, pairs, deltas))
+            o = opt("1:1", 1, 1, [(s1, idx[0]), (s2, idx[1])], [b1, b2], [n1, n2])
+            if o.limiting >= min_delta_pka:
+                options.append(o)
         return options
 
-    options.append(Option("1:1", 1, 1, ((s1, first),), (dp(s1, first),)))
+    options.append(opt("1:1", 1, 1, [(s1, first)], [b1], [n1]))
     n_protons = getattr(ion, "n_protons", None)
     polyprotic = [first] + (further if cation is None else [])
     if n_protons:
         polyprotic = polyprotic[: int(n_protons)]
     # k API per counterion: the counterion's k-th pKa must also qualify against the API site
     for k in range(2, len(polyprotic) + 1):
-        idx = polyprotic[:k]
-        deltas = tuple(dp(s1, i) for i in idx)
-        if deltas[-1] < min_delta_pka:
+        o = opt(f"{k}:1", k, 1, [(s1, i) for i in polyprotic[:k]], [b1] * k, [n1] * k)
+        if o.delta_pkas[-1] < min_delta_pka:
             break
-        options.append(Option(f"{k}:1", k, 1, tuple((s1, i) for i in idx), deltas))
+        options.append(o)
     # bis-salt: the API's second site with a second (monoprotic) counterion
     monoprotic = len(polyprotic) == 1 or (cation is not None and cation[1] == 1)
     if s2 is not None and monoprotic:
-        pairs = ((s1, first), (s2, first))
-        deltas = tuple(dp(s, i) for s, i in pairs)
-        if min(deltas) >= min_delta_pka:
-            options.append(Option("1:2", 1, 2, pairs, deltas))
+        o = opt("1:2", 1, 2, [(s1, first), (s2, first)], [b1, b2], [n1, n2])
+        if o.limiting >= min_delta_pka:
+            options.append(o)
     return options
 
 
@@ -361,8 +392,8 @@ def compose(parent_smiles: str, ion, option: Option) -> Composition:
         cation_smiles, _charge = cation
         # protons leave API copy by copy: a 2:1 calcium salt takes one from each of two APIs
         per_copy: list[list[int]] = [[] for _ in range(n_api)]
-        for k, (site, _) in enumerate(option.pairs):
-            per_copy[k % n_api].append(site.atom)
+        for k in range(len(option.pairs)):
+            per_copy[k % n_api].append(option.bearer(k))
         anions = [_deprotonated(parent_smiles, tuple(atoms)) for atoms in per_copy]
         salt_smiles = ".".join(anions + [cation_smiles] * n_ci)
         formula, salt_mw = _combined([(1, a) for a in anions] + [(n_ci, cation_smiles)])

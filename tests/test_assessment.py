@@ -430,3 +430,11 @@ def test_choline_salt_holds_the_cation():
     cand = A.assess(NS(smiles="OC(=O)c1ccccc1"), [site(0, "acid", 4.2)], [choline])[0]
     assert cand.formula == "C12H19NO3"
     assert cand.salt_mw == pytest.approx(225.29, abs=0.02)
+
+
+def test_zwitterion_profile_is_u_shaped_around_its_isoelectric_range():
+    # amino acid, pKa 3.7 (COOH) and 10.7 (NH3+): least soluble between the two pKa values,
+    # S = S0·(1 + 10^(3.7 − pH) + 10^(pH − 10.7)) (Henderson–Hasselbalch)
+    prof = {ph: free for ph, free, _ in S.ph_profile(1.0, base_pka=10.7, acid_pka=3.7)}
+    assert prof[7.0] == pytest.approx(1.0 + 10 ** (3.7 - 7.0) + 10 ** (7.0 - 10.7))
+    assert prof[1.0] > 100 * prof[7.0] and prof[10.0] < 2 * prof[7.0]

@@ -279,3 +279,37 @@ def test_repr_html_delegates_to_reports():
     pytest.importorskip("saltplan.reports")
     html = plan_salts(DIPHENHYDRAMINE)._repr_html_()
     assert "hydrochloride" in html
+
+
+def test_zwitterion_needs_a_strong_acid_for_its_cation_salt():
+    # cetirizine: marketed as the dihydrochloride (public knowledge); pKa 2.9 (COOH), 8.0 and
+    # 2.2 (piperazine N) from memory. The neutral form is a zwitterion: an acid must protonate
+    # the carboxylate (pKa 2.9), so weak carboxylic acids fail and HCl (1:1 and 1:2) works.
+    smi = "OC(=O)COCCN1CCN(CC1)C(c1ccccc1)c1ccc(Cl)cc1"
+    from saltplan.ionization import ionizable_sites
+
+    sites = ionizable_sites(smi)
+    acid = min((s for s in sites if s.kind == "acid"), key=lambda s: s.pka)
+    bases = sorted((s for s in sites if s.kind == "base"), key=lambda s: -s.pka)
+    measured = {acid.atom: 2.9, bases[0].atom: 8.0}
+    if len(bases) > 1:
+        measured[bases[1].atom] = 2.2
+    plan = plan_salts(smi, measured=measured)
+    hcl = {c.stoichiometry: c for c in plan.candidates if c.counterion == "hydrochloride"}
+    assert set(hcl) == {"1:1", "1:2"}
+    assert hcl["1:1"].delta_pka == pytest.approx(2.9 - hcl["1:1"].transfers[0].counterion_pka)
+    assert "zwitterion" in hcl["1:1"].transfers[0].note
+    assert not any(c.counterion in ("acetate", "succinate") for c in plan.candidates)
+    # a base must take the ammonium proton (pKa 8.0): sodium yes, weak bases no
+    na = [c for c in plan.candidates if c.counterion == "sodium"][0]
+    assert na.delta_pka == pytest.approx(na.transfers[0].counterion_pka - 8.0)
+    assert "[O-]" in na.salt_smiles and "[Na+]" in na.salt_smiles
+
+
+def test_gabapentin_like_amino_acid():
+    # gabapentin: pKa 3.7 (COOH) and 10.7 (amine), from memory; marketed as the free zwitterion
+    plan = plan_salts("NCC1(CC(=O)O)CCCCC1", measured={"acid": 3.7, "base": 10.7})
+    ids = {c.counterion for c in plan.candidates}
+    assert "hydrochloride" in ids            # 3.7 − (−6.1) ≫ 2
+    assert "tromethamine" not in ids         # 8.07 − 10.7 < 0: cannot take the ammonium proton
+    assert "sodium" in ids                   # 14 − 10.7 > 2

@@ -124,9 +124,12 @@ def test_html_makes_no_network_request_and_has_no_script(html):
     assert "Content-Security-Policy" in html
 
 
-def test_html_ids_unique(html):
+def test_html_ids_unique_and_references_resolve(html):
     ids = [a["id"] for _, a in _tags(html) if "id" in a]
     assert len(ids) == len(set(ids))
+    refs = re.findall(r'(?:href="#|url\(#)([^")]+)', html)
+    assert refs                                          # the charts use clip paths / glyphs
+    assert set(refs) <= set(ids)
 
 
 # --------------------------------------------------------------------------- escaping
@@ -197,7 +200,9 @@ def test_md_escape_block_markers():
 
 # --------------------------------------------------------------------------- determinism
 def test_reports_byte_deterministic_apart_from_created(plan, screen):
+    charts.clear_cache()
     a = render_plan_html(plan, screen)
+    charts.clear_cache()                                  # draw every chart afresh
     b = render_plan_html(copy.deepcopy(plan), copy.deepcopy(screen))
     assert a == b
     later = copy.deepcopy(plan)
@@ -329,7 +334,9 @@ def _chart_svgs(plan):
 
 
 def test_charts_are_stable_svg_with_paths_only(plan):
+    charts.clear_cache()
     first = _chart_svgs(plan)
+    charts.clear_cache()
     assert first == _chart_svgs(plan)
     for svg in first:
         root = ET.fromstring(svg)
@@ -357,7 +364,9 @@ def test_site_labels_distinguish_measured_and_estimated():
 
 
 def test_structure_svg_deterministic_and_checked(plan):
+    charts.clear_cache()
     a = drawing.structure_svg(plan["parent"]["smiles"], plan["sites"])
+    charts.clear_cache()
     assert a == drawing.structure_svg(plan["parent"]["smiles"], plan["sites"])
     ET.fromstring(a)
     from saltplan.errors import StructureError

@@ -15,6 +15,7 @@ from __future__ import annotations
 import io
 import math
 import re
+import threading
 from html import escape
 from typing import Iterable, Sequence
 
@@ -43,7 +44,44 @@ _RC = {
     "path.simplify": True,
 }
 
+_CACHE: dict[str, str] = {}
+_CACHE_MAX = 64
+_CACHE_LOCK = threading.Lock()
+
+
+def cached(fn):
+    """Memoize an SVG function on the JSON of its arguments (the output is deterministic).
+
+    Rendering the same plan as page, fragment and Markdown draws each chart once.
+    :func:`clear_cache` empties it (tests that compare two fresh renders use it).
+    """
+    import functools
+    import json
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        key = fn.__qualname__ + json.dumps([args, kwargs], sort_keys=True, default=str)
+        with _CACHE_LOCK:
+            hit = _CACHE.get(key)
+        if hit is None:
+            hit = fn(*args, **kwargs)
+            with _CACHE_LOCK:
+                while len(_CACHE) >= _CACHE_MAX:
+                    _CACHE.pop(next(iter(_CACHE)))
+                _CACHE[key] = hit
+        return hit
+
+    return wrapper
+
+
+def clear_cache() -> None:
+    """Forget every memoized chart and drawing."""
+    with _CACHE_LOCK:
+        _CACHE.clear()
+
+
 _ID_RE = re.compile(r'\bid="([^"]+)"')
+_REF_RE = re.compile(r'(\bid="|"#|url\(#)([^")]+)')
 
 
 def _figure(width_in: float, height_in: float):
@@ -71,12 +109,12 @@ def _inline(svg: str, prefix: str, label: str) -> str:
     svg = svg[start:]
     svg = re.sub(r"<!--.*?-->", "", svg, flags=re.S)
     svg = re.sub(r"<metadata>.*?</metadata>", "", svg, flags=re.S)
-    ids = _ID_RE.findall(svg)
-    for old in sorted(set(ids), key=lambda s: (-len(s), s)):
-        new = f"{prefix}-{old}"
-        svg = svg.replace(f'id="{old}"', f'id="{new}"')
-        svg = svg.replace(f'"#{old}"', f'"#{new}"')
-        svg = svg.replace(f"url(#{old})", f"url(#{new})")
+    ids = set(_ID_RE.findall(svg))        # membership only; the output order is the file's
+
+    def _prefixed(m: re.Match) -> str:
+        return f"{m.group(1)}{prefix}-{m.group(2)}" if m.group(2) in ids else m.group(0)
+
+    svg = _REF_RE.sub(_prefixed, svg)
     svg = svg.replace("<svg ", f'<svg role="img" aria-label="{escape(label, quote=True)}" '
                       f'class="sp-chart" ', 1)
     svg = re.sub(r">\s+<", ">\n<", svg).strip()
@@ -90,6 +128,7 @@ def _rc():
 
 
 # --------------------------------------------------------------------------- ΔpKa bands
+@cached
 def delta_pka_chart(rows: Sequence[dict], bands: Sequence[dict], minimum: float | None,
                     name: str = "dpka") -> str:
     """Horizontal bars of ΔpKa per counterion over the category bands.
@@ -165,6 +204,7 @@ def fraction_ionized(kind: str, pka: float, ph: float) -> float:
     return 1.0 / (1.0 + 10.0 ** x)
 
 
+@cached
 def ionization_chart(sites: Sequence[dict], name: str = "ionized") -> str:
     """Fraction ionized against pH (0–14) for each site, with its pKa marked.
 
@@ -194,6 +234,7 @@ def ionization_chart(sites: Sequence[dict], name: str = "ionized") -> str:
 
 
 # --------------------------------------------------------------------------- solubility
+@cached
 def solubility_chart(points: Sequence[tuple[float, float]], ph_max: float | None,
                      s0: float | None, unit: str, name: str = "solubility",
                      free: Sequence[tuple[float, float]] = ()) -> str:

@@ -18,6 +18,10 @@ from .context_base import (CATEGORY_LABELS, PROVENANCE_SHORT, SEVERITY_ORDER, Mi
 
 __all__ = ["build_context", "MissingKey", "need", "fmt"]
 
+#: keys every plan dict must carry (DEVELOPERS.md, plan.Plan); others are optional
+REQUIRED_PLAN_KEYS = ("name", "inputs", "parent", "sites", "candidates", "excluded", "verdict",
+                      "cautions", "references", "provenance")
+
 PART_LABELS = {"delta_pka": "ΔpKa", "drug_content": "drug content"}
 
 
@@ -284,10 +288,15 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
 
     ``graphics=False`` skips the SVG drawing and charts (the Markdown report has none).
     """
-    prov = need(plan, "provenance", "plan")
+    for key in REQUIRED_PLAN_KEYS:                      # fail fast, before any drawing
+        need(plan, key, "plan")
+    prov = plan["provenance"]
     for key in ("tool", "version", "library_hash", "input_hash", "created"):
         need(prov, key, "plan.provenance")
-    parent = need(plan, "parent", "plan")
+    for key in ("code", "text"):
+        need(plan["verdict"], key, "plan.verdict")
+    parent = plan["parent"]
+    need(parent, "smiles", "plan.parent")
     sites = site_views(plan)
     cands = candidate_views(need(plan, "candidates", "plan"), "plan.candidates", sites)
     excluded = candidate_views(need(plan, "excluded", "plan"), "plan.excluded", sites)

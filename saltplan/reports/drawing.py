@@ -16,6 +16,7 @@ from html import escape
 from typing import Sequence
 
 from ..errors import StructureError
+from .charts import cached
 
 BASE_COLOUR = (0.337, 0.706, 0.914)   # Okabe–Ito sky blue #56B4E9
 ACID_COLOUR = (0.902, 0.624, 0.0)     # Okabe–Ito orange #E69F00
@@ -32,6 +33,7 @@ def site_label(site: dict) -> str:
     return f"~{pka:.1f} est."
 
 
+@cached
 def structure_svg(smiles: str, sites: Sequence[dict], width: int = 520,
                   height: int = 340) -> str:
     """Inline-ready SVG of ``smiles`` with the sites labelled.

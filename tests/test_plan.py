@@ -313,3 +313,16 @@ def test_gabapentin_like_amino_acid():
     assert "hydrochloride" in ids            # 3.7 − (−6.1) ≫ 2
     assert "tromethamine" not in ids         # 8.07 − 10.7 < 0: cannot take the ammonium proton
     assert "sodium" in ids                   # 14 − 10.7 > 2
+
+
+def test_weak_base_leaves_only_strong_acids():
+    # domain notes §3 (common practice): a base of pKa about 3–4 leaves only strong acids
+    # (sulfonic acids, HCl, HBr, sulfuric); phosphoric and maleic acids sit at the margin
+    plan = plan_salts("COc1ccc2nccc(C)c2c1", measured={"base": 3.5})
+    feasible = {c.counterion for c in plan.candidates}
+    assert {"hydrochloride", "hydrobromide", "sulfate", "mesylate"} <= feasible
+    assert not feasible & {"acetate", "citrate", "fumarate", "tartrate", "succinate"}
+    margin = {c.counterion: c.category for c in plan.excluded if c.stoichiometry == "1:1"}
+    assert margin["phosphate"] == "uncertain" and margin["maleate"] == "uncertain"
+    hcl = [c for c in plan.candidates if c.counterion == "hydrochloride"][0]
+    assert "weak_base_disproportionation" in [x.code for x in hcl.caveats]

@@ -40,6 +40,7 @@ class Group:
     require_aryl: bool = False
     exclude_amidine_like: bool = False
     source: str = ""
+    requires: frozenset = frozenset()   # elements the pattern needs (cheap pre-filter)
 
 
 def _yaml(name: str):
@@ -84,7 +85,8 @@ def groups() -> tuple[Group, ...]:
             one_per_center=bool(row.get("one_per_center", False)),
             require_aryl=bool(row.get("require_aryl", False)),
             exclude_amidine_like=bool(row.get("exclude_amidine_like", False)),
-            source=row["source"]))
+            source=row["source"],
+            requires=frozenset(a.GetAtomicNum() for a in pattern.GetAtoms() if a.GetAtomicNum() > 0)))
     return tuple(out)
 
 
@@ -158,9 +160,17 @@ def _default_parameters() -> tuple[tuple[str, float], ...]:
     return tuple(sorted(p.items()))
 
 
-def parameters() -> dict[str, float]:
-    """Parameters in use: priors, overridden by the calibration file when present."""
+@functools.lru_cache(maxsize=1)
+def _parameters_dict() -> dict[str, float]:
     return dict(_default_parameters())
+
+
+def parameters() -> dict[str, float]:
+    """Parameters in use: priors, overridden by the calibration file when present.
+
+    The returned dict is shared (cached): treat it as read-only; copy it to modify.
+    """
+    return _parameters_dict()
 
 
 def is_fitted(key: str) -> bool:

@@ -51,6 +51,7 @@ class SiteRecord:
     notes: list[str] = field(default_factory=list)
     extra_uncertainty: float = 0.0
     sym: int = 0
+    blocked: frozenset[int] = frozenset()
 
 
 @dataclass
@@ -67,6 +68,11 @@ def _aux_patterns():
     amidine_like = tuple(Chem.MolFromSmarts(s) for s in _AMIDINE_LIKE)
     permanent = tuple((Chem.MolFromSmarts(s), name, gid, q) for s, name, gid, q in _PERMANENT)
     return amidine_like, permanent
+
+
+@functools.lru_cache(maxsize=1)
+def _group_order() -> dict[str, int]:
+    return {grp.id: i for i, grp in enumerate(catalogue.groups())}
 
 
 def _matched_atoms(mol, pattern) -> set[int]:
@@ -86,7 +92,10 @@ def perceive(mol) -> Perception:
     centers_once: set[tuple[str, int]] = set()
     records: list[SiteRecord] = []
     taft_cfg = catalogue.taft_table()
+    present = set(g.z)
     for grp in catalogue.groups():
+        if not grp.requires <= present:
+            continue
         matches = mol.GetSubstructMatches(grp.pattern, uniquify=False, maxMatches=1000)
         if not matches:
             continue
@@ -120,15 +129,18 @@ def perceive(mol) -> Perception:
                 blocked = frozenset(a for a in match if g.z[a] not in (6, 1) and a != center)
                 rec.taft = taft_terms(g, types, center, blocked, params["c_ar"],
                                       float(taft_cfg["max_cost"]), params["geminal"])
+                rec.blocked = blocked
             records.append(rec)
     records.sort(key=lambda r: r.atom)
     pairs: dict[tuple[int, int], Pair] = {}
     if len(records) > 1:
         ranks = list(Chem.CanonicalRankAtoms(mol, breakTies=False))
         for i, r in enumerate(records):
-            r.sym = ranks[r.atom] * 1000 + catalogue.groups().index(r.group)
+            r.sym = ranks[r.atom] * 1000 + _group_order()[r.group.id]
         max_cost = float(catalogue.interaction_table()["max_cost"])
         for i, ri in enumerate(records):
+            if i + 1 == len(records):
+                break
             cost, _hops, paths, _entry = g.shortest_costs(ri.center, frozenset(), params["c_ar"], max_cost)
             for j in range(i + 1, len(records)):
                 rj = records[j]

@@ -27,14 +27,16 @@ class MolGraph:
     def from_mol(cls, mol) -> "MolGraph":
         n = mol.GetNumAtoms()
         z, arom, hs, charge, degree = [], [], [], [], []
-        for a in mol.GetAtoms():
+        for idx in range(n):
+            a = mol.GetAtomWithIdx(idx)
             z.append(a.GetAtomicNum())
             arom.append(a.GetIsAromatic())
             hs.append(a.GetTotalNumHs())
             charge.append(a.GetFormalCharge())
             degree.append(a.GetDegree())
         nbrs: list[list[tuple[int, float, bool]]] = [[] for _ in range(n)]
-        for b in mol.GetBonds():
+        for bidx in range(mol.GetNumBonds()):
+            b = mol.GetBondWithIdx(bidx)
             i, j = b.GetBeginAtomIdx(), b.GetEndAtomIdx()
             order = b.GetBondTypeAsDouble()
             ar = b.GetIsAromatic()

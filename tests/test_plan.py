@@ -326,3 +326,15 @@ def test_weak_base_leaves_only_strong_acids():
     assert margin["phosphate"] == "uncertain" and margin["maleate"] == "uncertain"
     hcl = [c for c in plan.candidates if c.counterion == "hydrochloride"][0]
     assert "weak_base_disproportionation" in [x.code for x in hcl.caveats]
+
+
+def test_importing_the_plan_modules_is_cheap():
+    # importing parses no YAML and loads no RDKit (start-up time of the CLI)
+    import subprocess
+    import sys
+
+    code = ("import sys, saltplan.plan, saltplan.cli.plan, saltplan.ranking, saltplan.assessment, "
+            "saltplan.caveats, saltplan.solubility, saltplan.stoichiometry; "
+            "print(any(m == 'rdkit' or m.startswith('yaml') for m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"

@@ -27,7 +27,13 @@ MOLECULES = [
 
 
 def _command() -> list[str]:
-    """The installed `saltplan` entry point, else the same through the interpreter."""
+    """The installed `saltplan` console script beside this interpreter (no shell shims),
+    else the first on PATH, else the same entry point through the interpreter."""
+    from pathlib import Path
+
+    beside = Path(sys.executable).with_name("saltplan")
+    if beside.exists():
+        return [str(beside)]
     exe = shutil.which("saltplan")
     if exe:
         return [exe]
@@ -113,7 +119,9 @@ def main() -> None:
     ap.add_argument("--molecules", type=int, default=200, help="distinct molecules for the cold figure")
     args = ap.parse_args()
 
-    print(f"python {sys.version.split()[0]}, {os.cpu_count()} CPUs")
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"python {sys.version.split()[0]}, {os.cpu_count()} CPUs, load average {load:.1f}")
+    print(f"command: {' '.join(_command())}")
     print(f"interpreter + `import saltplan.cli`: {import_wall() * 1000:.0f} ms")
     cli = cli_wall(MOLECULES[0], args.repeat)
     print(f"`saltplan plan SMILES --json` wall (incl. start-up), {args.repeat} runs: "

@@ -519,3 +519,28 @@ def test_write_report_objects(tmp_path, real):
     paths = write_plan_report(plan, tmp_path, screen=screen)
     assert json.loads(paths[2].read_text(encoding="utf-8")) == plan.to_dict()
     assert "Screen design" in paths[1].read_text(encoding="utf-8")
+
+
+def test_rationale_explains_choices_and_exclusions(html, plan, screen):
+    from markupsafe import escape
+
+    text = html[html.index('id="sp-rationale"'):html.index('id="sp-cautions"')]
+    for c in plan["candidates"][:3]:
+        assert escape(c["counterion"]) in text and f"ΔpKa {c['delta_pka']:.2f}" in text
+    for c in plan["excluded"]:
+        assert escape(c["reason"]) in text
+    assert "Common-ion effect" in text                  # liability of a recommended salt
+    if screen["dropped"]:
+        assert escape(screen["dropped"][0]["reason"]) in text
+    assert "USP–NF" in text and "qualified staff" in text
+
+
+def test_rationale_caps_long_lists(plan):
+    from saltplan.reports.context import build_context
+
+    big = copy.deepcopy(plan)
+    base = big["candidates"][5]
+    big["candidates"] = [dict(base, rank=i + 1, counterion=f"ion{i:02d}") for i in range(30)]
+    paras = build_context(big, graphics=False)["rationale"]
+    lower = next(p for p in paras if p.startswith("Also feasible"))
+    assert "and 19 more" in lower and "ion10" in lower and "ion11" not in lower

@@ -167,9 +167,14 @@ def write_plan_report(plan: Any, out_dir: str | Path, screen: Any = None) -> lis
 def repr_html(obj: Any) -> str:
     """HTML for Jupyter's ``_repr_html_`` of a Plan, ScreenDesign or Selection.
 
-    Plans and screen designs render the report fragment. A Selection renders through
-    ``saltplan.select.render_selection_html`` when that module provides it, else as an
-    escaped key/value table in the report style.
+    Plans and screen designs render the report fragment (scoped CSS, no ``<html>``). A
+    Selection renders through ``saltplan.select_report.render_decision_html`` when that
+    module is present, else as an escaped key/value table in the report style.
+
+    Each class adds one method::
+
+        def _repr_html_(self):
+            from .reports import repr_html; return repr_html(self)
     """
     d = _as_dict(obj)
     if "verdict" in d and "candidates" in d:
@@ -177,12 +182,12 @@ def repr_html(obj: Any) -> str:
     if "wells" in d and "plan" in d:
         return render_plan_fragment(d["plan"], d)
     try:
-        from .. import select as _select
-        render = getattr(_select, "render_selection_html", None)
+        from ..select_report import render_decision_html
     except ImportError:
-        render = None
-    if callable(render):
-        return render(obj)
+        render_decision_html = None
+    if render_decision_html is not None and hasattr(obj, "to_dict") and (
+            "lead" in d or "groups" in d):
+        return render_decision_html(obj)
     return _generic_fragment(d)
 
 

@@ -10,17 +10,23 @@ from __future__ import annotations
 from typing import Any
 
 
+#: how many lower-ranked or excluded candidates the prose names before "and N more"
+MAX_LISTED = 8
+
+
 def _site_phrase(s: dict) -> str:
     if s["provenance"] == "estimated":
         how = f"estimated {s['uncertainty_text']}" if s["uncertainty_text"] != "n/a" \
             else "estimated"
-        if s["source"]:
-            how += f" by {s['source']}"
+        if s["source_short"]:
+            how += f" by {s['source_short']}"
     elif s["provenance"] == "measured":
         how = f"measured ({s['source'] or 'user'})"
     else:
         how = s["provenance"]
-    return f"a {s['group']} at atom {s['label']} ({s['kind']}, pKa {s['pka_text']}, {how})"
+    article = "an" if s["group"][:1].lower() in "aeiou" else "a"
+    return (f"{article} {s['group']} at atom {s['label']} ({s['kind']}, pKa {s['pka_text']}, "
+            f"{how})")
 
 
 def _num(x: float) -> str:
@@ -112,13 +118,21 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
                                    for i, c in enumerate(top)))
     rest = ctx["candidates"][3:]
     if rest:
-        out.append("Also feasible and ranked lower: " + "; ".join(
+        shown = rest[:MAX_LISTED]
+        text = "Also feasible and ranked lower: " + "; ".join(
             f"{c['label']} {c['stoichiometry']} (ΔpKa {c['delta_pka_text']}, score "
-            f"{c['score_text']})" for c in rest) + ".")
+            f"{c['score_text']})" for c in shown)
+        if len(rest) > len(shown):
+            text += f"; and {len(rest) - len(shown)} more (see the ranked table)"
+        out.append(text + ".")
     if ctx["excluded"]:
-        out.append("Excluded from the shortlist: " + "; ".join(
-            f"{c['label']} {c['stoichiometry']}, {c['reason'] or 'infeasible'}"
-            for c in ctx["excluded"]) + ".")
+        shown = ctx["excluded"][:MAX_LISTED]
+        text = "Excluded from the shortlist: " + "; ".join(
+            f"{c['label']} {c['stoichiometry']}, {c['reason'] or 'infeasible'}" for c in shown)
+        if len(ctx["excluded"]) > len(shown):
+            text += (f"; and {len(ctx['excluded']) - len(shown)} more (see the excluded "
+                     "counterions table)")
+        out.append(text + ".")
     screen = ctx["screen"]
     if screen:
         solvents = [s.get("name") or s.get("id") for s in screen["solvents"]]

@@ -31,6 +31,12 @@ PROBABILITY_SOURCE = ("P = clip(0.17·ΔpKa + 0.28, 0, 1), crystal-structure sta
                       "(Cruz-Cabeza, CrystEngComm 2012, 14, 6362; relation from memory)")
 
 
+def _r(value: float, digits: int) -> float:
+    """round() without "-0.0" (stable JSON bytes)."""
+    out = round(value, digits)
+    return 0.0 if out == 0 else out
+
+
 # --------------------------------------------------------------------------- the rule
 @dataclass(frozen=True)
 class Thresholds:
@@ -147,14 +153,14 @@ class Transfer:
         return {
             "api_atom": self.api_atom,
             "api_kind": self.api_kind,
-            "api_pka": round(self.api_pka, 2),
+            "api_pka": _r(self.api_pka, 2),
             "api_pka_provenance": self.api_pka_provenance,
             "api_pka_source": self.api_pka_source,
-            "api_pka_uncertainty": round(self.api_pka_uncertainty, 2),
-            "counterion_pka": round(self.counterion_pka, 2),
+            "api_pka_uncertainty": _r(self.api_pka_uncertainty, 2),
+            "counterion_pka": _r(self.counterion_pka, 2),
             "counterion_pka_index": self.counterion_pka_index,
             "counterion_pka_source": self.counterion_pka_source,
-            "delta_pka": round(self.delta_pka, 2),
+            "delta_pka": _r(self.delta_pka, 2),
             "note": self.note,
         }
 
@@ -208,24 +214,24 @@ class Candidate:
             "counterion_name": self.counterion_name,
             "stoichiometry": self.stoichiometry,
             "api_sites": list(self.api_sites),
-            "delta_pka": round(self.delta_pka, 2),
-            "delta_pkas": [round(d, 2) for d in self.delta_pkas],
+            "delta_pka": _r(self.delta_pka, 2),
+            "delta_pkas": [_r(d, 2) for d in self.delta_pkas],
             "category": self.category,
             "feasible": self.feasible,
-            "probability": round(self.probability, 3),
+            "probability": _r(self.probability, 3),
             "transfers": [t.to_dict() for t in self.transfers],
             "tier": self.tier,
             "formula": self.formula,
             "formula_display": self.formula_display,
             "salt_smiles": self.salt_smiles,
-            "salt_mw": round(self.salt_mw, 2),
-            "drug_content": round(self.drug_content, 2),
+            "salt_mw": _r(self.salt_mw, 2),
+            "drug_content": _r(self.drug_content, 2),
             "mass_source": MASS_SOURCE,
-            "score": round(self.score, 3),
-            "breakdown": {k: round(v, 3) for k, v in self.breakdown.items()},
-            "ph_max": None if self.ph_max is None else round(self.ph_max, 2),
+            "score": _r(self.score, 3),
+            "breakdown": {k: _r(v, 3) for k, v in self.breakdown.items()},
+            "ph_max": None if self.ph_max is None else _r(self.ph_max, 2),
             "ph_max_basis": self.ph_max_basis,
-            "slurry_ph": None if self.slurry_ph is None else round(self.slurry_ph, 2),
+            "slurry_ph": None if self.slurry_ph is None else _r(self.slurry_ph, 2),
             "caveats": [c.to_dict() for c in self.caveats],
             "reason": self.reason,
         }

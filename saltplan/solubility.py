@@ -56,7 +56,7 @@ def esol_log_s(clogp: float, mw: float, rotatable_bonds: int, aromatic_proportio
     .. math:: \\log S = 0.16 - 0.63\\,c\\log P - 0.0062\\,MW + 0.066\\,RB - 0.74\\,AP
 
     >>> round(esol_log_s(2.0, 200.0, 2, 0.5), 3)
-    -2.532
+    -2.578
     """
     return (0.16 - 0.63 * float(clogp) - 0.0062 * float(mw) + 0.066 * float(rotatable_bonds)
             - 0.74 * float(aromatic_proportion))

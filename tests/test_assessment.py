@@ -438,3 +438,13 @@ def test_zwitterion_profile_is_u_shaped_around_its_isoelectric_range():
     prof = {ph: free for ph, free, _ in S.ph_profile(1.0, base_pka=10.7, acid_pka=3.7)}
     assert prof[7.0] == pytest.approx(1.0 + 10 ** (3.7 - 7.0) + 10 ** (7.0 - 10.7))
     assert prof[1.0] > 100 * prof[7.0] and prof[10.0] < 2 * prof[7.0]
+
+
+@pytest.mark.parametrize("module", ["saltplan.assessment", "saltplan.stoichiometry",
+                                    "saltplan.solubility", "saltplan.ranking"])
+def test_docstring_examples(module):
+    import doctest
+    import importlib
+
+    result = doctest.testmod(importlib.import_module(module))
+    assert result.failed == 0

@@ -260,6 +260,10 @@ def test_cli_errors_are_one_line(cli, tmp_path):
     assert r.exit_code == 2
     r = cli("plan", "C1CC")
     assert r.exit_code == 1 and "SMILES" in r.stderr
+    r = cli("plan", DIPHENHYDRAMINE, "--pka", "base=abc")
+    assert r.exit_code == 1 and "abc" in r.stderr and len(r.stderr.strip().splitlines()) == 1
+    r = cli("plan", DIPHENHYDRAMINE, "--s0", "-1")
+    assert r.exit_code == 1 and "intrinsic solubility" in r.stderr
 
 
 def test_user_library_adds_and_overrides(fixtures_dir):

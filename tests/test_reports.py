@@ -544,3 +544,28 @@ def test_rationale_caps_long_lists(plan):
     paras = build_context(big, graphics=False)["rationale"]
     lower = next(p for p in paras if p.startswith("Also feasible"))
     assert "and 19 more" in lower and "ion10" in lower and "ion11" not in lower
+
+
+def _tag_names(html: str) -> list[str]:
+    return [t for t, _ in _tags(html)]
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc")), min_size=1,
+               max_size=40))
+def test_any_user_text_leaves_the_markup_unchanged(text):
+    # whatever a user types as a name or a library liability, the page keeps its structure
+    p = fx.plan_dict(name=text)
+    p["candidates"][0]["caveats"][0]["text"] = text
+    reference = fx.plan_dict(name="plain")
+    reference["candidates"][0]["caveats"][0]["text"] = "plain"
+    assert _tag_names(render_plan_html(p)) == _tag_names(render_plan_html(reference))
+    md = render_plan_markdown(p)
+    assert not _LIVE_LINK.search(md) and not _LIVE_TAG.search(md)
+
+
+def test_unnamed_compound(plan):
+    p = copy.deepcopy(plan)
+    p["name"] = None
+    p["parent"]["name"] = None
+    assert "Salt-form plan: unnamed compound" in render_plan_html(p)

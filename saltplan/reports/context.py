@@ -82,6 +82,19 @@ def site_views(plan: dict) -> list[dict]:
     return out
 
 
+def _basis_text(t: dict | None, site_label: dict, unc: float | None) -> str:
+    """ "N6 pKa 3.07 (est. ±0.40) vs counterion pKa −6.10" for the limiting transfer."""
+    if not t:
+        return ""
+    prov = t.get("api_pka_provenance") or ""
+    tag = PROVENANCE_SHORT.get(prov, prov)
+    if unc:
+        tag += f" ±{unc:.2f}"
+    site = site_label.get(t.get("api_atom"), f"atom {t.get('api_atom')}")
+    return (f"{site} pKa {fmt(t.get('api_pka'))} ({tag}) vs counterion pKa "
+            f"{fmt(t.get('counterion_pka'))}")
+
+
 def _strip_prefix(source: str, provenance: str) -> str:
     """A site's source without a leading "estimated:" that repeats its provenance."""
     if source.lower().startswith(provenance.lower() + ":"):
@@ -167,6 +180,7 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
                                                   for a in c.get("api_sites") or []],
             "ph_max_text": fmt(c.get("ph_max")), "ph_max_basis": c.get("ph_max_basis") or "",
             "reason": c.get("reason") or "", "limiting_uncertainty": limiting_unc,
+            "dpka_basis": _basis_text(limiting, site_label, limiting_unc),
         })
     return out
 

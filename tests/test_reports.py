@@ -569,3 +569,15 @@ def test_unnamed_compound(plan):
     p["name"] = None
     p["parent"]["name"] = None
     assert "Salt-form plan: unnamed compound" in render_plan_html(p)
+
+
+def test_weak_sites_verdict_keeps_the_exclusions(plan):
+    p = copy.deepcopy(plan)
+    p["candidates"] = []
+    p["verdict"] = {"code": "weak_sites_only", "text": "No counterion reaches ΔpKa ≥ 2.",
+                    "alternatives": ["co-crystal screen"]}
+    html = render_plan_html(p)
+    assert "no salt screen recommended" in html and "Excluded counterions" in html
+    assert html.count('class="sp-chart"') == 3          # ΔpKa chart shows the exclusions
+    for c in p["excluded"]:
+        assert c["reason"] in html

@@ -7,14 +7,12 @@ optional sections (screen, solubility, sites) may be absent or empty.
 """
 from __future__ import annotations
 
-import json
 from typing import Any
 
 from . import charts, drawing, rationale
-from .screenview import screen_view
-
 from .context_base import (CATEGORY_LABELS, PROVENANCE_SHORT, SEVERITY_ORDER, MissingKey,
                            fmt, need, plain, text_of)
+from .screenview import screen_view
 
 __all__ = ["build_context", "MissingKey", "need", "fmt"]
 

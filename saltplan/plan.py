@@ -209,14 +209,12 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     StructureError, ParameterError, CounterionLibraryError
     """
     from ._provenance import input_hash, provenance
-    from .assessment import (MASS_SOURCE, PROBABILITY_SOURCE, THRESHOLD_SOURCE, assess,
-                             ranking_key)
-    from .caveats import api_caveats, api_features, candidate_caveats
+    from .assessment import assess
+    from .caveats import api_caveats, api_features
     from .counterions import load_counterions
     from .ionization import ionizable_sites
-    from .ranking import RankingConfig, load_ranking_config, rank_order, score_candidate
-    from .solubility import PHMAX_SOURCE, SLURRY_SOURCE, sketch, slurry_ph
-    from .solubility import ph_max as solubility_ph_max
+    from .ranking import RankingConfig, load_ranking_config
+    from .solubility import sketch
     from .structure import read_structure
 
     dose_mg = _number(dose_mg, "dose (mg/day)", positive=True)
@@ -249,39 +247,8 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     raw = assess(parent, relevant, library, min_delta_pka=min_delta_pka, thresholds=thresholds,
                  slope=float(prob["slope"]), intercept=float(prob["intercept"]))
 
-    settings_caveats = dict(cfg.caveat_settings)
-    with_1_1 = {c.counterion for c in raw if c.stoichiometry == "1:1" and c.feasible}
-    conc = sol.salt_mg_ml / parent.mw            # mol/L at the salt solubility (as free form)
-    scored = []
-    for cand in raw:
-        ion = library.get(cand.counterion)
-        limiting = cand.limiting_transfer
-        # the salt of an acid counterion behaves as a base salt (also for a zwitterion,
-        # whose carboxylate-type site takes the proton), and vice versa
-        ph_max = solubility_ph_max("base" if ion.role == "acid" else "acid", limiting.api_pka,
-                                   sol.intrinsic.mg_ml, sol.salt_mg_ml)
-        fields = {
-            "ph_max": ph_max,
-            "ph_max_basis": None if ph_max is None else
-            f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}",
-            "slurry_ph": slurry_ph("base" if ion.role == "acid" else "acid", limiting.api_pka,
-                                   limiting.counterion_pka, conc),
-        }
-        cavs, triggered = candidate_caveats(
-            cand, ion, features, dose_mg=dose_mg, route=route, s0_mg_ml=sol.intrinsic.mg_ml,
-            s0_basis=sol.intrinsic.method, api_mw=parent.mw,
-            api_base_pka=limiting.api_pka if ion.role == "acid" else None,
-            settings=settings_caveats, ph_max=ph_max, ph_max_basis=fields["ph_max_basis"])
-        score, breakdown = score_candidate(
-            cand, ion, dose_mg=dose_mg, triggered_flags=triggered,
-            alternative=cand.counterion in with_1_1, cfg=cfg, ph_max=ph_max,
-            slurry_ph=fields["slurry_ph"])
-        fields.update(caveats=cavs, score=score, breakdown=breakdown)
-        key = ranking_key(score, cand.delta_pka, cand.counterion, cand.stoichiometry)
-        scored.append((_Keyed(cand.feasible, key), cand, fields))
-    good, bad = rank_order(scored, key=lambda x: x[0])
-    ranked = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(good, start=1)]
-    excluded = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(bad, start=len(ranked) + 1)]
+    ranked, excluded = _score_and_rank(raw, library, parent, features, sol, cfg,
+                                       dose_mg=dose_mg, route=route)
 
     verdict = _verdict(sites, relevant, ranked, excluded, library, features, min_delta_pka)
     inputs = {
@@ -298,7 +265,67 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
         "intrinsic_solubility_mg_ml": intrinsic_solubility_mg_ml,
         "salt_solubility_mg_ml": salt_solubility_mg_ml,
     }
-    settings = {
+    settings = _settings(cfg, min_delta_pka, dose_mg)
+    digest = input_hash(json.dumps(inputs, sort_keys=True, ensure_ascii=False),
+                        library.hash, cfg.hash)
+    prov = provenance(library_hash=library.hash, weights_hash=cfg.hash,
+                      input_hash=f"sha256:{digest}")
+    return Plan(
+        name=parent.name, inputs=inputs, parent=parent, sites=sites,
+        candidates=tuple(ranked), excluded=tuple(excluded), verdict=verdict, solubility=sol,
+        caveats=api_caveats(features), thresholds=thresholds, settings=settings,
+        cautions=CAUTIONS, references=REFERENCES, provenance=prov)
+
+
+def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route):
+    """pHmax, slurry pH, caveats and score of every candidate; (ranked, excluded)."""
+    from .assessment import ranking_key
+    from .caveats import candidate_caveats
+    from .ranking import rank_order, score_candidate
+    from .solubility import ph_max as solubility_ph_max
+    from .solubility import slurry_ph
+
+    settings_caveats = dict(cfg.caveat_settings)
+    with_1_1 = {c.counterion for c in raw if c.stoichiometry == "1:1" and c.feasible}
+    conc = sol.salt_mg_ml / parent.mw            # mol/L at the salt solubility (as free form)
+    basis = f"salt solubility {sol.salt_basis}, S0 {sol.intrinsic.method}"
+    scored = []
+    for cand in raw:
+        ion = library.get(cand.counterion)
+        limiting = cand.limiting_transfer
+        # the salt of an acid counterion behaves as a base salt (also for a zwitterion,
+        # whose carboxylate-type site takes the proton), and vice versa
+        salt_kind = "base" if ion.role == "acid" else "acid"
+        ph_max = solubility_ph_max(salt_kind, limiting.api_pka, sol.intrinsic.mg_ml,
+                                   sol.salt_mg_ml)
+        fields = {"ph_max": ph_max, "ph_max_basis": basis,
+                  "slurry_ph": slurry_ph(salt_kind, limiting.api_pka, limiting.counterion_pka,
+                                         conc)}
+        cavs, triggered = candidate_caveats(
+            cand, ion, features, dose_mg=dose_mg, route=route, s0_mg_ml=sol.intrinsic.mg_ml,
+            s0_basis=sol.intrinsic.method, api_mw=parent.mw,
+            api_base_pka=limiting.api_pka if ion.role == "acid" else None,
+            settings=settings_caveats, ph_max=ph_max, ph_max_basis=basis)
+        score, breakdown = score_candidate(
+            cand, ion, dose_mg=dose_mg, triggered_flags=triggered,
+            alternative=cand.counterion in with_1_1, cfg=cfg, ph_max=ph_max,
+            slurry_ph=fields["slurry_ph"])
+        fields.update(caveats=cavs, score=score, breakdown=breakdown)
+        key = ranking_key(score, cand.delta_pka, cand.counterion, cand.stoichiometry)
+        scored.append((_Keyed(cand.feasible, key), cand, fields))
+    good, bad = rank_order(scored, key=lambda x: x[0])
+    ranked = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(good, start=1)]
+    excluded = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(bad, start=len(ranked) + 1)]
+    return ranked, excluded
+
+
+def _settings(cfg, min_delta_pka, dose_mg) -> dict[str, Any]:
+    """Settings and sources recorded in the plan (how every derived number was made)."""
+    from .assessment import MASS_SOURCE, PROBABILITY_SOURCE, THRESHOLD_SOURCE
+    from .solubility import PHMAX_SOURCE, SLURRY_SOURCE
+
+    prob = cfg.data["probability"]
+    return {
         "min_delta_pka": min_delta_pka,
         "probability": f"P = clip({prob['slope']}·ΔpKa + {prob['intercept']}, 0, 1) "
                        "(Cruz-Cabeza 2012; from memory)",
@@ -321,15 +348,6 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
             "score": f"weights {cfg.source} (common practice; see the file's header)",
         },
     }
-    digest = input_hash(json.dumps(inputs, sort_keys=True, ensure_ascii=False),
-                        library.hash, cfg.hash)
-    prov = provenance(library_hash=library.hash, weights_hash=cfg.hash,
-                      input_hash=f"sha256:{digest}")
-    return Plan(
-        name=parent.name, inputs=inputs, parent=parent, sites=sites,
-        candidates=tuple(ranked), excluded=tuple(excluded), verdict=verdict, solubility=sol,
-        caveats=api_caveats(features), thresholds=thresholds, settings=settings,
-        cautions=CAUTIONS, references=REFERENCES, provenance=prov)
 
 
 @dataclass(frozen=True)

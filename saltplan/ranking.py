@@ -57,7 +57,10 @@ class RankingConfig:
 
     @property
     def caveat_settings(self) -> Mapping[str, Any]:
-        return self.data["caveats"]
+        """The ``caveats`` section plus the formulation microenvironment pH."""
+        out = dict(self.data["caveats"])
+        out["microenvironment_ph"] = self.data["disproportionation"]["microenvironment_ph"]
+        return out
 
     def to_dict(self) -> dict[str, Any]:
         return {"source": self.source, "hash": self.hash,

@@ -478,6 +478,12 @@ def test_real_screen_plate_matches_wells(real, real_html):
         assert m and m.group(1) == w["kind"], w["well"]
     for d in screen["dropped"]:
         assert d["reason"].split("(")[0].strip() in real_html
+    from markupsafe import escape
+
+    basis = real_html[real_html.index("Basis of the amounts"):]
+    for cid, b in screen["basis"]["counterions"].items():
+        assert escape(cid) in basis and escape(b["mw_source"]) in basis
+    assert escape(screen["basis"]["api_mw"]["source"]) in basis
 
 
 def test_real_reports_deterministic(real):

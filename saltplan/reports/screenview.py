@@ -73,6 +73,31 @@ def _totals(totals: dict) -> tuple[list[dict], list[dict], list[dict]]:
     return rows, ions, stocks
 
 
+def _basis(basis: dict) -> tuple[list[dict], list[dict]]:
+    """Rows explaining where the amounts come from, and one row per counterion as dosed."""
+    rows, ions = [], []
+    for key, value in basis.items():
+        if key == "counterions" and isinstance(value, dict):
+            for cid, b in value.items():
+                b = b if isinstance(b, dict) else {"note": b}
+                ions.append({
+                    "counterion": cid, "mw": _num(b.get("mw"), 3),
+                    "mw_source": b.get("mw_source") or "", "form": b.get("form") or "",
+                    "density": _num(b.get("density_g_ml"), 3),
+                    "density_source": b.get("density_source") or "",
+                    "mass_fraction": _num(b.get("mass_fraction"), 2),
+                    "dosing": b.get("dosing") or ""})
+        elif isinstance(value, dict):
+            rest = {k: v for k, v in value.items() if k != "source"}
+            rows.append({"label": key.replace("_", " "),
+                         "value": "; ".join(f"{k.replace('_', ' ')}: {plain(v)}"
+                                            for k, v in rest.items()),
+                         "prov": str(value.get("source") or "")})
+        else:
+            rows.append({"label": key.replace("_", " "), "value": plain(value), "prov": ""})
+    return rows, ions
+
+
 def screen_view(screen: dict | None) -> dict | None:
     """Normalized screen section; None without a screen."""
     if not screen:
@@ -97,6 +122,7 @@ def screen_view(screen: dict | None) -> dict | None:
             grids = platemap.plate_grids(wells, names)
         except ValueError as exc:
             raise MissingKey(f"report input: {exc}") from None
+    basis_rows, basis_ions = _basis(screen.get("basis") or {})
     notes = _note_index(wells)
     numbers = {n["text"]: n["number"] for n in notes}
     totals_rows, ion_totals, stocks = _totals(screen.get("totals") or {})
@@ -120,6 +146,7 @@ def screen_view(screen: dict | None) -> dict | None:
         "raw_dropped": [dict(d) for d in screen.get("dropped") or []],
         "dropped": [{"what": _combo(d), "reason": d.get("reason") or "",
                      "source": d.get("source") or ""} for d in screen.get("dropped") or []],
+        "basis_rows": basis_rows, "basis_ions": basis_ions,
         "totals_rows": totals_rows, "ion_totals": ion_totals, "stocks": stocks,
         "budget_rows": ([{"label": k.replace("_", " "), "value": plain(v)}
                          for k, v in budget.items()] if isinstance(budget, dict)

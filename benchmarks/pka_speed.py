@@ -58,7 +58,7 @@ def main(argv=None):
 
     smis, what = molecules()
     n = len(smis)
-    patterns = [g.pattern for g in catalogue.groups()]
+    patterns = [pat for g in catalogue.groups() for pat in g.patterns]
     ionizable_sites(smis[0])  # load tables, compile SMARTS (not timed)
     parents = [read_structure(s) for s in smis]
 

@@ -23,7 +23,7 @@ from .estimate import ACID_MAX, BASE_MIN, Perception, evaluate, perceive
 #: ridge strength and prior scales by parameter family
 LAMBDA = 2.0
 SCALES = {"pka0": 0.7, "rho": 0.35, "beta": 0.35, "alpha": 0.5, "gamma": 0.08, "int": 0.3,
-          "same_ring": 0.1}
+          "same_ring": 0.1, "c_ar": 0.1}
 HUBER = 1.0
 OUTLIER = 4.0          # residuals beyond this are treated as unassignable (weight ~0)
 
@@ -141,6 +141,8 @@ def choose_parameters(entries: list[Entry], prior: dict[str, float]) -> list[str
             counts[f"pka0:{g.id}"] = counts.get(f"pka0:{g.id}", 0) + 1
             if g.model in ("hammett", "taft"):
                 counts[f"rho:{g.id}"] = counts.get(f"rho:{g.id}", 0) + 1
+            if g.taft_too:
+                counts[f"rhot:{g.id}"] = counts.get(f"rhot:{g.id}", 0) + 1
             for t in rec.taft:
                 fam = "alpha" if t.alpha else "beta"
                 k = f"{fam}:{t.type}"
@@ -149,10 +151,10 @@ def choose_parameters(entries: list[Entry], prior: dict[str, float]) -> list[str
     keys = []
     for k, c in sorted(counts.items()):
         fam = _family(k)
-        need = {"pka0": 6, "rho": 25, "beta": 12, "alpha": 8}.get(fam, 10)
+        need = {"pka0": 6, "rho": 25, "rhot": 15, "beta": 12, "alpha": 8}.get(fam, 10)
         if c >= need:
             keys.append(k)
-    keys += ["gamma", "same_ring", "int:w0", "int:k_base_cation", "int:k_base_anion", "int:k_acid_cation",
+    keys += ["gamma", "c_ar", "same_ring", "int:w0", "int:k_base_cation", "int:k_base_anion", "int:k_acid_cation",
              "int:k_acid_anion"]
     return keys
 
@@ -164,6 +166,8 @@ def _scale(key: str, prior: float) -> float:
         # a parent value is as firm as its class: well-established parents (phenol,
         # benzoic acid, pyridine) barely move, class values with a wide range move more
         return max(min(SCALES["pka0"], group.uncertainty), 0.15)
+    if fam == "rhot":
+        return max(SCALES["rho"] * abs(prior), 0.2)
     if fam == "rho":
         if group is not None and group.model == "hammett":
             return max(0.12 * abs(prior), 0.1)   # Hammett rho are well established
@@ -188,12 +192,12 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
         fam, _, name = k.partition(":")
         idx = []
         for n, e in enumerate(entries):
-            if fam in ("pka0", "rho"):
+            if fam in ("pka0", "rho", "rhot"):
                 hit = any(r.group.id == name for r in e.perc.records)
             elif fam in ("beta", "alpha"):
                 hit = any((("alpha" if t.alpha else "beta") + ":" + t.type) == k
                           for r in e.perc.records for t in r.taft)
-            elif fam in ("gamma", "same_ring"):
+            elif fam in ("gamma", "same_ring", "c_ar"):
                 hit = any(r.taft for r in e.perc.records)
             else:
                 hit = len(e.perc.records) > 1
@@ -206,6 +210,7 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
         for k, v in zip(keys, theta):
             p[k] = float(v)
         p["gamma"] = min(max(p["gamma"], 0.2), 0.8)
+        p["c_ar"] = min(max(p["c_ar"], 0.2), 1.0)
         return p
 
     def residuals(theta, assignment):

@@ -25,7 +25,7 @@ class Group:
     name: str
     kind: str
     smarts: str
-    pattern: Any = field(repr=False, compare=False)
+    patterns: tuple = field(repr=False, compare=False)
     site: int = 0
     center: int | None = None
     anchor: int | None = None
@@ -40,7 +40,10 @@ class Group:
     require_aryl: bool = False
     exclude_amidine_like: bool = False
     source: str = ""
-    requires: frozenset = frozenset()   # elements the pattern needs (cheap pre-filter)
+    requires: frozenset = frozenset()   # elements every pattern needs (cheap pre-filter)
+    claims: tuple = ()                  # further match atoms no later group may take
+    taft_too: bool = False              # hammett site with an aliphatic side (N-alkyl anilines)
+    rho_taft: float = 0.0
 
 
 def _yaml(name: str):
@@ -66,9 +69,13 @@ def groups() -> tuple[Group, ...]:
             raise ParameterError("kind must be acid or base", file=origin, entry=gid, field="kind")
         if row.get("model") not in _MODELS:
             raise ParameterError(f"model must be one of {_MODELS}", file=origin, entry=gid, field="model")
-        pattern = Chem.MolFromSmarts(row["smarts"])
-        if pattern is None:
-            raise ParameterError("SMARTS does not parse", file=origin, entry=gid, field="smarts")
+        texts = row["smarts"] if isinstance(row.get("smarts"), list) else [row.get("smarts")]
+        patterns = []
+        for text in texts:
+            pat = Chem.MolFromSmarts(text) if isinstance(text, str) else None
+            if pat is None:
+                raise ParameterError("SMARTS does not parse", file=origin, entry=gid, field="smarts")
+            patterns.append(pat)
         if row.get("model") == "hammett" and row.get("anchor") is None:
             raise ParameterError("hammett model needs an anchor atom", file=origin, entry=gid,
                                  field="anchor")
@@ -76,7 +83,8 @@ def groups() -> tuple[Group, ...]:
             raise ParameterError("every parent value needs a source", file=origin, entry=gid,
                                  field="source")
         out.append(Group(
-            id=gid, name=row["name"], kind=row["kind"], smarts=row["smarts"], pattern=pattern,
+            id=gid, name=row["name"], kind=row["kind"], smarts=" | ".join(texts),
+            patterns=tuple(patterns),
             site=int(row.get("site", 0)), center=row.get("center"), anchor=row.get("anchor"),
             model=row["model"], family=row.get("family"), pka=float(row["pka"]),
             rho=float(row.get("rho", 0.0)), uncertainty=float(row.get("uncertainty", 0.5)),
@@ -86,7 +94,12 @@ def groups() -> tuple[Group, ...]:
             require_aryl=bool(row.get("require_aryl", False)),
             exclude_amidine_like=bool(row.get("exclude_amidine_like", False)),
             source=row["source"],
-            requires=frozenset(a.GetAtomicNum() for a in pattern.GetAtoms() if a.GetAtomicNum() > 0)))
+            requires=frozenset.intersection(*[
+                frozenset(a.GetAtomicNum() for a in p.GetAtoms() if a.GetAtomicNum() > 0)
+                for p in patterns]),
+            claims=tuple(int(i) for i in row.get("claims", ())),
+            taft_too=bool(row.get("taft_too", False)),
+            rho_taft=float(row.get("rho_taft", 0.0))))
     return tuple(out)
 
 
@@ -133,6 +146,8 @@ def prior_parameters() -> dict[str, float]:
         p[f"pka0:{g.id}"] = g.pka
         if g.model in ("hammett", "taft"):
             p[f"rho:{g.id}"] = g.rho
+        if g.taft_too:
+            p[f"rhot:{g.id}"] = g.rho_taft
         p[f"sens:{g.id}"] = g.sensitivity
     t = taft_table()
     p["gamma"] = float(t["gamma"])

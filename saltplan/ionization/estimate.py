@@ -25,7 +25,7 @@ from .interaction import SOURCE as INTERACTION_SOURCE
 from .interaction import Pair, sequence
 from .site import PermanentCharge, Site, Step
 from .taft import SOURCE as TAFT_SOURCE
-from .taft import TaftTerm, atom_types, taft_terms, term_value
+from .taft import TaftTerm, atom_types, taft_terms, term_cost, term_value
 
 #: sites outside this window are not returned (DEVELOPERS.md: base pKa < -2, acid pKa > 16)
 BASE_MIN = -2.0
@@ -96,7 +96,8 @@ def perceive(mol) -> Perception:
     for grp in catalogue.groups():
         if not grp.requires <= present:
             continue
-        matches = mol.GetSubstructMatches(grp.pattern, uniquify=False, maxMatches=1000)
+        matches = [m for pat in grp.patterns
+                   for m in mol.GetSubstructMatches(pat, uniquify=False, maxMatches=1000)]
         if not matches:
             continue
         for m in matches:
@@ -117,7 +118,10 @@ def perceive(mol) -> Perception:
             if grp.require_aryl and not any(
                     g.z[a] == 7 and any(g.arom[j] for j, _o, _ar in g.nbrs[a]) for a in m):
                 continue
+            if any(m[i] in claimed for i in grp.claims):
+                continue
             claimed.add(atom)
+            claimed.update(m[i] for i in grp.claims)
             centers_once.add((grp.id, center))
             match = frozenset(m)
             rec = SiteRecord(atom=atom, group=grp, center=center, match=match)
@@ -125,6 +129,13 @@ def perceive(mol) -> Perception:
                 anchor = m[grp.anchor]
                 rec.hammett, rec.notes = hammett_terms(g, anchor, match, grp.family or "weak")
                 rec.extra_uncertainty = math.sqrt(sum(t.extra_uncertainty ** 2 for t in rec.hammett))
+                if grp.taft_too:
+                    # the aliphatic side of an N-alkyl aniline: the aryl ring is blocked
+                    ring = next((r for r in g.rings if anchor in r), (anchor,))
+                    blocked = frozenset(ring) | frozenset(a for a in match if a not in (center, anchor)
+                                                          and g.z[a] != 6)
+                    rec.taft = taft_terms(g, types, center, blocked, params["c_ar"],
+                                          float(taft_cfg["max_cost"]), params["geminal"])
             elif grp.model == "taft":
                 blocked = frozenset(a for a in match if g.z[a] not in (6, 1) and a != center)
                 rec.taft = taft_terms(g, types, center, blocked, params["c_ar"],
@@ -171,8 +182,8 @@ def intrinsic(rec: SiteRecord, params: dict[str, float], explain: bool = False):
             value += d
             if explain:
                 steps.append(Step(t.label, d, f"-{rho:.2f} x {t.detail}", t.source))
-    elif grp.model == "taft":
-        rho = params[f"rho:{grp.id}"]
+    if grp.model == "taft" or grp.taft_too:
+        rho = params[f"rho:{grp.id}"] if grp.model == "taft" else params[f"rhot:{grp.id}"]
         gamma = params["gamma"]
         small = 0.0
         for t in rec.taft:
@@ -187,11 +198,13 @@ def intrinsic(rec: SiteRecord, params: dict[str, float], explain: bool = False):
                 small += d
                 continue
             row = (catalogue.taft_table()["alpha" if t.alpha else "beta"]).get(t.type) or {}
-            where = "alpha" if t.alpha else f"{t.cost:g} bonds"
+            cost = term_cost(t, params)
+            where = "alpha" if t.alpha else f"{cost:.3g} bonds"
             detail = (f"-{rho:.2f} x sigma* {v:+.2f}" if t.alpha else
-                      f"-{rho:.2f} x {params.get('beta:' + t.type, 0):+.2f} x {gamma:.2f}^{t.cost - 2:g}"
+                      f"-{rho:.2f} x {params.get('beta:' + t.type, 0):+.2f} x {gamma:.2f}^{cost - 2:.3g}"
                       + (f" x {t.paths} paths" if t.paths > 1 else "")
-                      + (f" x {t.mult:.2f} geminal" if t.mult != 1.0 else ""))
+                      + (f" x {t.mult:.2f} geminal" if t.mult != 1.0 else "")
+                      + (f" x {params['same_ring']:.2f} same ring" if t.ring else ""))
             steps.append(Step(f"{row.get('name', t.type)} at atom {t.atom} ({where})", d, detail,
                               TAFT_SOURCE))
         if explain and abs(small) >= 0.005:

@@ -22,6 +22,7 @@ class MolGraph:
     rings: list[tuple[int, ...]]                # SSSR atom rings
     atom_rings: list[list[int]]                 # ring indices per atom
     ring_bonds: set[tuple[int, int]]
+    last_aromatic: dict | None = None
 
     @classmethod
     def from_mol(cls, mol) -> "MolGraph":
@@ -80,12 +81,14 @@ class MolGraph:
         Returns ``(cost, hops, paths, entry)`` dicts: ``cost`` weighs aromatic bonds by
         ``aromatic_cost``; ``paths`` counts equally cheap paths (capped at 2); ``entry`` is
         True for an aromatic atom reached from a non-aromatic one (first atom of a ring).
-        Atoms in ``blocked`` are neither visited nor crossed.
+        Atoms in ``blocked`` are neither visited nor crossed. The number of aromatic bonds
+        on each best path is left in ``self.last_aromatic``.
         """
         cost = {start: 0.0}
         hops = {start: 0}
         paths = {start: 1}
         entry = {start: False}
+        self.last_aromatic = arom_bonds = {start: 0}
         heap = [(0.0, 0, start)]
         done = set()
         eps = 1e-9
@@ -105,6 +108,7 @@ class MolGraph:
                     cost[j] = cj
                     hops[j] = h + 1
                     paths[j] = paths[i]
+                    arom_bonds[j] = arom_bonds[i] + (1 if ar else 0)
                     entry[j] = self.arom[j] and not ar
                     heapq.heappush(heap, (cj, h + 1, j))
                 elif abs(cj - old) <= eps:

@@ -36,7 +36,8 @@ class TaftTerm:
     atom: int
     type: str
     alpha: bool
-    cost: float
+    n_al: int            # aliphatic bonds on the best path
+    n_ar: int            # aromatic bonds on the best path
     paths: int
     mult: float          # geminal saturation factor
     ring: bool = False   # shares a ring with the centre (held orientation, see same_ring)
@@ -140,6 +141,7 @@ def taft_terms(g: MolGraph, types: list[str | None], center: int, blocked: froze
                aromatic_cost: float, max_cost: float, geminal: float) -> list[TaftTerm]:
     """Inductive terms seen from ``center`` (parameter-free part; weights applied later)."""
     cost, hops, paths, entry = g.shortest_costs(center, blocked, aromatic_cost, max_cost)
+    n_arom = g.last_aromatic
     terms: list[TaftTerm] = []
     gem_count: dict[int, int] = {}
     center_rings = set(g.atom_rings[center])
@@ -161,7 +163,7 @@ def taft_terms(g: MolGraph, types: list[str | None], center: int, blocked: froze
                 gem_count[carbon] = k + 1
                 mult = geminal ** k
         ring = bool(center_rings) and hops[a] >= 2 and bool(center_rings & set(g.atom_rings[a]))
-        terms.append(TaftTerm(a, t, hops[a] == 1, cost[a], paths[a], mult, ring))
+        terms.append(TaftTerm(a, t, hops[a] == 1, hops[a] - n_arom[a], n_arom[a], paths[a], mult, ring))
     return terms
 
 
@@ -174,6 +176,11 @@ def taft_sum(terms: list[TaftTerm], params: dict[str, float]) -> float:
     return total
 
 
+def term_cost(t: TaftTerm, params: dict[str, float]) -> float:
+    """Bond cost of the term: aliphatic bonds + c_ar x aromatic bonds."""
+    return t.n_al + params["c_ar"] * t.n_ar
+
+
 def term_value(t: TaftTerm, params: dict[str, float], gamma: float | None = None) -> float:
     if gamma is None:
         gamma = params["gamma"]
@@ -182,12 +189,13 @@ def term_value(t: TaftTerm, params: dict[str, float], gamma: float | None = None
         if v is None:
             return 0.0
         return v * t.mult
-    if t.type == "C_sp3" and t.cost > 2.0 + 1e-9:
+    cost = term_cost(t, params)
+    if t.type == "C_sp3" and cost > 2.0 + 1e-9:
         return 0.0
     v = params.get(f"beta:{t.type}")
     if v is None:
         v = params.get("beta:other", 0.0)
-    v = v * (gamma ** (t.cost - 2.0)) * t.paths * t.mult
+    v = v * (gamma ** (cost - 2.0)) * t.paths * t.mult
     if t.ring:
         v *= params["same_ring"]
     return v

@@ -215,14 +215,16 @@ def intrinsic_solubility(mol, *, melting_point_c: float | None = None,
     -------
     IntrinsicSolubility
     """
-    from rdkit.Chem import Crippen, Descriptors, rdMolDescriptors
+    from rdkit.Chem import rdMolDescriptors
 
-    mw = Descriptors.MolWt(mol)
+    from .stoichiometry import mol_weight
+
+    mw = mol_weight(mol)
     if user_mg_ml is not None:
         _check_positive(user_mg_ml, "intrinsic solubility (mg/mL)")
         return IntrinsicSolubility(float(user_mg_ml), math.log10(user_mg_ml / mw), "user", "user",
                                    "value supplied by the user", (("mw", mw),))
-    logp = Crippen.MolLogP(mol)
+    logp = rdMolDescriptors.CalcCrippenDescriptors(mol)[0]   # = Crippen.MolLogP
     if melting_point_c is not None:
         if not (isinstance(melting_point_c, (int, float)) and -100 <= melting_point_c <= 500):
             raise ParameterError(f"melting point must be between -100 and 500 °C, got "

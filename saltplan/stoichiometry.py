@@ -272,12 +272,31 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
 @functools.lru_cache(maxsize=1024)
 def _mol_info(smiles: str) -> tuple[str, float]:
     from rdkit import Chem
-    from rdkit.Chem import Descriptors, rdMolDescriptors
+    from rdkit.Chem import rdMolDescriptors
 
     mol = Chem.MolFromSmiles(smiles)
     if mol is None:
         raise ParameterError(f"cannot parse SMILES '{smiles}' while computing a salt formula")
-    return rdMolDescriptors.CalcMolFormula(mol), Descriptors.MolWt(mol)
+    return rdMolDescriptors.CalcMolFormula(mol), mol_weight(mol)
+
+
+def mol_weight(mol) -> float:
+    """Average molecular weight [g/mol] from RDKit's periodic table (IUPAC atomic weights).
+
+    The same sum as ``rdkit.Chem.Descriptors.MolWt`` (isotope-labelled atoms use their
+    isotope mass), without importing the descriptor module (which loads NumPy).
+    """
+    from rdkit import Chem
+
+    pt = Chem.GetPeriodicTable()
+    h = pt.GetAtomicWeight(1)
+    total = 0.0
+    for atom in mol.GetAtoms():
+        z = atom.GetAtomicNum()
+        iso = atom.GetIsotope()
+        total += pt.GetMassForIsotope(z, iso) if iso else pt.GetAtomicWeight(z)
+        total += atom.GetTotalNumHs() * h
+    return total
 
 
 _FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")

@@ -448,3 +448,18 @@ def test_docstring_examples(module):
 
     result = doctest.testmod(importlib.import_module(module))
     assert result.failed == 0
+
+
+@pytest.mark.parametrize("smiles", ["CN(C)CCOC(c1ccccc1)c1ccccc1", "[2H]C([2H])([2H])Oc1ccccc1",
+                                    "[Na+].CC(=O)[O-]", "C[N+](C)(C)CCO.[OH-]"])
+def test_mol_weight_equals_rdkit_molwt(smiles):
+    # RDKit Descriptors.MolWt (general-purpose reference library), isotopes included
+    from rdkit import Chem
+    from rdkit.Chem import Crippen, Descriptors
+
+    from saltplan.stoichiometry import mol_weight
+
+    mol = Chem.MolFromSmiles(smiles)
+    assert mol_weight(mol) == pytest.approx(Descriptors.MolWt(mol), abs=1e-9)
+    est = S.intrinsic_solubility(mol)
+    assert dict(est.inputs)["clogp"] == pytest.approx(Crippen.MolLogP(mol))

@@ -125,7 +125,7 @@ def load_ranking_config(path: str | Path | None = None) -> RankingConfig:
     user = load_yaml_path(path) or {}
     data = _merge(_defaults(), user, "", str(path))
     cfg = RankingConfig(data, f"saltplan/data/ranking_weights.yaml + {path}",
-                        sha256_text(json.dumps(data, sort_keys=True, default=str)))
+                        "sha256:" + sha256_text(json.dumps(data, sort_keys=True, default=str)))
     _check(cfg, str(path))
     return cfg
 
@@ -136,7 +136,7 @@ def _default_config() -> RankingConfig:
 
     data = _defaults()
     cfg = RankingConfig(data, "saltplan/data/ranking_weights.yaml",
-                        sha256_text(json.dumps(data, sort_keys=True, default=str)))
+                        "sha256:" + sha256_text(json.dumps(data, sort_keys=True, default=str)))
     _check(cfg, "saltplan/data/ranking_weights.yaml")
     return cfg
 

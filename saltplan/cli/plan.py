@@ -145,5 +145,5 @@ def render_text(d: dict, top: int = 10) -> str:
         lines.append(f"caution     {caution}")
     lines.append(f"provenance  saltplan {d['provenance']['version']}, library "
                  f"{d['provenance']['library_hash'][:19]}, weights "
-                 f"{d['provenance'].get('weights_hash', '')[:12]}")
+                 f"{d['provenance'].get('weights_hash', '')[:19]}")
     return "\n".join(lines)

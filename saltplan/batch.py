@@ -409,8 +409,13 @@ def run_batch(dataframe_or_path, out, *, summary=None, **options) -> BatchRun:
 
     from pathlib import Path
 
-    label = ("DataFrame" if hasattr(dataframe_or_path, "columns")
-             else Path(dataframe_or_path).name)
+    is_frame = hasattr(dataframe_or_path, "columns")
+    label = "DataFrame" if is_frame else Path(dataframe_or_path).name
+    targets = [Path(out).resolve()] + ([Path(summary).resolve()] if summary is not None else [])
+    if not is_frame and Path(dataframe_or_path).resolve() in targets:
+        raise ParameterError("the output would replace the input file", file=str(out))
+    if summary is not None and targets[0] == targets[1]:
+        raise ParameterError("the table and the summary would be the same file", file=str(out))
     builder = SummaryBuilder(source=label, top=options.get("top", 3))
     writer = open_table_writer(out, COLUMNS)
     user_progress = options.pop("progress", None)

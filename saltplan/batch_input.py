@@ -9,8 +9,8 @@ drops it), while a batch must keep every input row and flag the bad ones.
 Conventions
 -----------
 * ``row`` is the 1-based number of the data record (the header is not counted; blank lines
-  are skipped and not counted; a quoted field spanning lines is one record). For an SDF it
-  is the record number.
+  are skipped and not counted, but a line of empty fields is a row; a quoted field spanning
+  lines is one record). For an SDF it is the record number.
 * Column names are matched exactly, then case-insensitively (``SMILES`` finds ``smiles``).
   ``id``, ``name``, dose and measured-pKa columns are optional: when not named they are
   looked up under their default names (``id``; ``name``; ``dose_mg``; ``pka``), and a
@@ -247,11 +247,12 @@ class CsvSource(Source):
                     row += 1
                     yield Record(row=row, error=f"not valid CSV (line {reader.line_num}): {exc}")
                     continue
-                if not any(f.strip() for f in fields):
-                    continue
                 if not seen_header:
-                    seen_header = True
+                    if any(f.strip() for f in fields):
+                        seen_header = True
                     continue
+                if not fields or (len(fields) == 1 and not fields[0].strip()):
+                    continue  # a blank line (a line of commas is a row: it gets an error)
                 row += 1
                 error = None
                 if len(fields) != width:

@@ -24,6 +24,7 @@ from __future__ import annotations
 import contextlib
 import csv
 import json
+import math
 import os
 import tempfile
 from pathlib import Path
@@ -132,8 +133,15 @@ class CsvWriter(_TextWriter):
         self.count += len(rows)
 
 
+def _json_value(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None  # JSON has no NaN or infinity
+    return value
+
+
 def _json_row(row, cols) -> str:
-    return json.dumps({c: row.get(c) for c in cols}, ensure_ascii=False, allow_nan=False)
+    return json.dumps({c: _json_value(row.get(c)) for c in cols}, ensure_ascii=False,
+                      allow_nan=False)
 
 
 class JsonWriter(_TextWriter):

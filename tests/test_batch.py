@@ -569,3 +569,32 @@ def test_broken_user_library_fails_before_any_row(tmp_path):
     with pytest.raises(SaltplanError, match="nope.yaml"):
         run_batch(FIX / "batch_valid.csv", out, libraries=[str(tmp_path / "nope.yaml")])
     assert not out.exists() and not list(tmp_path.glob("*.part"))
+
+
+def test_line_of_empty_fields_is_a_row_but_blank_lines_are_not(tmp_path):
+    path = tmp_path / "blank.csv"
+    path.write_text("\nid,smiles\nA,CCO\n\n,\nB,CCN\n\n", encoding="utf-8")
+    df = evaluate_many(path, evaluator=standin_plan)
+    assert df["id"].tolist() == ["A", "", "B"] and df["row"].tolist() == [1, 2, 3]
+    assert df["error"].tolist() == [None, "empty SMILES", None]
+
+
+def test_output_may_not_replace_the_input(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("smiles\nCCO\n", encoding="utf-8")
+    with pytest.raises(ParameterError, match="replace the input"):
+        run_batch(src, src, evaluator=standin_plan)
+    with pytest.raises(ParameterError, match="same file"):
+        run_batch(src, tmp_path / "o.json", summary=tmp_path / "o.json", evaluator=standin_plan)
+    assert src.read_text(encoding="utf-8") == "smiles\nCCO\n"
+
+
+def test_json_writer_never_writes_nan(tmp_path):
+    from saltplan.batch_output import JsonWriter
+
+    out = tmp_path / "o.json"
+    w = JsonWriter(out, ("row", "most_basic_pka"))
+    w.write([{"row": 1, "most_basic_pka": float("nan")}, {"row": 2, "most_basic_pka": 9.5}])
+    w.commit()
+    assert json.loads(out.read_text(encoding="utf-8")) == [
+        {"row": 1, "most_basic_pka": None}, {"row": 2, "most_basic_pka": 9.5}]

@@ -20,7 +20,8 @@ __all__ = ["build_context", "MissingKey", "need", "fmt"]
 REQUIRED_PLAN_KEYS = ("name", "inputs", "parent", "sites", "candidates", "excluded", "verdict",
                       "cautions", "references", "provenance")
 
-PART_LABELS = {"delta_pka": "ΔpKa", "drug_content": "drug content"}
+PART_LABELS = {"delta_pka": "ΔpKa", "delta_pka_margin": "ΔpKa margin",
+               "drug_content": "drug content"}
 
 
 # --------------------------------------------------------------------------- sections

@@ -68,6 +68,8 @@ def _candidate_sentence(c: dict) -> str:
     serious = [cv["text"] for cv in c["caveats"] if cv.get("severity") in ("serious", "warning")]
     if serious:
         s += "; liabilities to control: " + " ".join(t.rstrip(".") + "." for t in serious)
+    elif c["caveats"]:
+        s += "; no warning-level liability flagged (information notes are listed in the report)."
     else:
         s += "; no liability flagged by the tool."
     return s

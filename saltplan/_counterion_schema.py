@@ -286,7 +286,9 @@ def _rdkit_reason(messages: list[str]) -> str:
 def _derive(smiles: str, role: str, n_protons: int, pka: tuple, fail) -> dict[str, Any]:
     """Parse the SMILES and compute MW, formula, ion masses and charge (RDKit)."""
     from rdkit import Chem
-    from rdkit.Chem import Descriptors, rdMolDescriptors
+    from rdkit.Chem import rdMolDescriptors
+
+    from .structure import mol_weight
 
     from .structure import rdkit_messages
 
@@ -301,7 +303,7 @@ def _derive(smiles: str, role: str, n_protons: int, pka: tuple, fail) -> dict[st
     frags = Chem.GetMolFrags(mol, asMols=True)
     hydroxides = [f for f in frags if Chem.MolToSmiles(f) == "[OH-]"]
     others = [f for f in frags if Chem.MolToSmiles(f) != "[OH-]"]
-    mw = Descriptors.MolWt(mol)
+    mw = mol_weight(mol)
     h_mass = Chem.GetPeriodicTable().GetAtomicWeight(1)
     cation_mw = None
     if hydroxides:
@@ -311,7 +313,7 @@ def _derive(smiles: str, role: str, n_protons: int, pka: tuple, fail) -> dict[st
         if n_protons != len(hydroxides) or cation_charge != len(hydroxides):
             fail("n_protons", f"{smiles} has {len(hydroxides)} hydroxide(s) and cation charge "
                               f"{cation_charge:+d}; n_protons must equal both, got {n_protons}")
-        cation_mw = sum(Descriptors.MolWt(f) for f in others)
+        cation_mw = sum(mol_weight(f) for f in others)
         ion_mw = cation_mw
     else:
         if len(frags) > 1:

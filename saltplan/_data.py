@@ -38,7 +38,10 @@ def counterion_dir() -> Path:
                          "in the installed package nor counterions/ in the checkout)")
 
 
-class _UniqueKeyLoader(yaml.SafeLoader):
+_SafeBase = getattr(yaml, "CSafeLoader", yaml.SafeLoader)  # libyaml when available (faster)
+
+
+class _UniqueKeyLoader(_SafeBase):
     """Safe loader that refuses duplicate mapping keys (a silent overwrite hides errors)."""
 
 

@@ -17,6 +17,7 @@ def write_text_atomic(path: str | Path, text: str, encoding: str = "utf-8") -> P
     try:
         with os.fdopen(fd, "w", encoding=encoding, newline="") as fh:
             fh.write(text)
+        os.chmod(tmp, 0o644)  # mkstemp creates 0600; outputs are ordinary shared files
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
@@ -32,6 +33,7 @@ def write_bytes_atomic(path: str | Path, data: bytes) -> Path:
     try:
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
+        os.chmod(tmp, 0o644)  # mkstemp creates 0600; outputs are ordinary shared files
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):

@@ -17,6 +17,7 @@ from collections import Counter
 from dataclasses import dataclass
 from typing import Any, Sequence
 
+from .structure import mol_weight  # noqa: F401  (re-exported)
 from .errors import ParameterError
 
 MASS_SOURCE = ("RDKit average atomic weights (IUPAC) of the salt species (API or API anion, "
@@ -278,25 +279,6 @@ def _mol_info(smiles: str) -> tuple[str, float]:
     if mol is None:
         raise ParameterError(f"cannot parse SMILES '{smiles}' while computing a salt formula")
     return rdMolDescriptors.CalcMolFormula(mol), mol_weight(mol)
-
-
-def mol_weight(mol) -> float:
-    """Average molecular weight [g/mol] from RDKit's periodic table (IUPAC atomic weights).
-
-    The same sum as ``rdkit.Chem.Descriptors.MolWt`` (isotope-labelled atoms use their
-    isotope mass), without importing the descriptor module (which loads NumPy).
-    """
-    from rdkit import Chem
-
-    pt = Chem.GetPeriodicTable()
-    h = pt.GetAtomicWeight(1)
-    total = 0.0
-    for atom in mol.GetAtoms():
-        z = atom.GetAtomicNum()
-        iso = atom.GetIsotope()
-        total += pt.GetMassForIsotope(z, iso) if iso else pt.GetAtomicWeight(z)
-        total += atom.GetTotalNumHs() * h
-    return total
 
 
 _FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")

@@ -299,6 +299,25 @@ def iter_sdf(path: str | Path) -> Iterator[tuple[int, str | None, str | None, di
             yield i, Chem.MolToSmiles(mol), (name or None), props, None
 
 
+def mol_weight(mol) -> float:
+    """Average molecular weight [g/mol] from RDKit's periodic table (IUPAC atomic weights).
+
+    The same sum as ``rdkit.Chem.Descriptors.MolWt`` (isotope-labelled atoms use their
+    isotope mass), without importing the descriptor module (which loads NumPy).
+    """
+    from rdkit import Chem
+
+    pt = Chem.GetPeriodicTable()
+    h = pt.GetAtomicWeight(1)
+    total = 0.0
+    for atom in mol.GetAtoms():
+        z = atom.GetAtomicNum()
+        iso = atom.GetIsotope()
+        total += pt.GetMassForIsotope(z, iso) if iso else pt.GetAtomicWeight(z)
+        total += atom.GetTotalNumHs() * h
+    return total
+
+
 # --------------------------------------------------------------------------- standardization
 def _metal_symbols(mol) -> list[str]:
     return sorted({a.GetSymbol() for a in mol.GetAtoms() if a.GetSymbol() not in _NONMETALS})
@@ -349,7 +368,7 @@ def standardize(mol, *, source: str = "", name: str | None = None,
                 max_heavy_atoms: int = DEFAULT_MAX_HEAVY_ATOMS) -> Parent:
     """Standardize an RDKit molecule to its parent. See :func:`read_structure`."""
     from rdkit import Chem
-    from rdkit.Chem import Descriptors, rdMolDescriptors
+    from rdkit.Chem import rdMolDescriptors
     from rdkit.Chem.MolStandardize import rdMolStandardize
 
     notes: list[str] = []
@@ -461,7 +480,7 @@ def standardize(mol, *, source: str = "", name: str | None = None,
         notes=tuple(notes),
         heavy_atoms=heavy,
         formula=rdMolDescriptors.CalcMolFormula(parent),
-        mw=Descriptors.MolWt(parent),
+        mw=mol_weight(parent),
     )
 
 

@@ -133,6 +133,12 @@ class ScreenDesign:
             "cautions": list(self.cautions),
         }
 
+    def _repr_html_(self) -> str:
+        """Inline HTML report in Jupyter."""
+        from .reports import repr_html
+
+        return repr_html(self)
+
 CAUTIONS = (
     "Planning aid, not a measurement: confirm salt formation and solid form by XRPD, DSC/TGA "
     "and NMR stoichiometry before drawing conclusions.",

@@ -160,6 +160,12 @@ class Selection:
             "provenance": self.provenance,
         }
 
+    def _repr_html_(self) -> str:
+        """Inline HTML decision record in Jupyter."""
+        from .reports import repr_html
+
+        return repr_html(self)
+
 
 # --------------------------------------------------------------------------- entry points
 def load_design(design_dir: str | Path) -> dict[str, Any]:

@@ -165,7 +165,10 @@ def hammett_terms(g: MolGraph, anchor: int, match: frozenset[int], family: str,
                 continue
             key, fallback = describe(g, x, a)
             row = table.get(key) or table["fallback"]
-            if p == 1 or (size == 5 and p == 1):
+            # a substituent on a pyrrole-type ring N (N-alkyl azoles) acts at half strength:
+            # 1-methylimidazole 7.06 vs imidazole 6.99 (Perrin 1965, from memory)
+            n_sub = 0.5 if (g.z[a] == 7 and g.degree[a] == 3 and g.arom[a]) else 1.0
+            if p == 1:
                 sigma = _ortho_sigma(row, column, fam["ortho"])
                 how = "sigma_o = a F + b R + c"
                 hb = (fam.get("ortho_hbond") or {}).get(key)
@@ -182,6 +185,9 @@ def hammett_terms(g: MolGraph, anchor: int, match: frozenset[int], family: str,
             if fallback:
                 extra += 0.3
                 notes.append(f"substituent at atom {x} not in the sigma table: {row['name']}")
+            if n_sub != 1.0:
+                sigma *= n_sub
+                how += f" x {n_sub} (on ring N)"
             terms.append(HammettTerm(f"{pname} {row['name']}", sigma,
                                      f"{how} {sigma:+.2f}", TABLE_SOURCE, extra))
     return terms, notes
@@ -202,13 +208,14 @@ def _fused_term(g: MolGraph, k: int, ring_set: set[int], pos: dict[int, int], si
     content = rules["fused"]["content"]
     extra = 0.0
     parts = []
+    scale = float(content.get("five_ring_factor", 1.0)) if len(fring) == 5 else 1.0
     for a in outside:
         rtype = _ring_atom_type(g, a)
         if rtype in content:
-            sigma += float(content[rtype])
+            sigma += scale * float(content[rtype])
             parts.append(rtype)
         if g.z[a] == 6 and g.has_double_to(a, (8,)):
-            sigma += float(content["oxo"])
+            sigma += scale * float(content["oxo"])
             parts.append("oxo")
     if parts:
         extra = float(content["extra_uncertainty"])

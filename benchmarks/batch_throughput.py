@@ -18,6 +18,7 @@ Run from the repository root::
 
     python benchmarks/batch_throughput.py [--rows 5000] [--memory-rows 5000 50000]
                                           [--memory-evaluator plan|floor] [--jobs N]
+                                          [--memory-jobs N] [--rounds N] [--json]
 
 The memory runs use the real planner by default; ``--memory-evaluator floor`` measures the
 streaming machinery alone (much faster for 50,000 rows). Figures go to stdout.
@@ -163,6 +164,8 @@ def main(argv=None) -> int:
     ap.add_argument("--jobs", type=int, default=os.cpu_count() or 1)
     ap.add_argument("--memory-jobs", type=int, default=1,
                     help="worker processes in the memory runs (1 = all in one process)")
+    ap.add_argument("--rounds", type=int, default=1,
+                    help="timed rounds of the planner runs (best is kept)")
     ap.add_argument("--skip-throughput", action="store_true", help="memory runs only")
     ap.add_argument("--json", action="store_true", help="also print the figures as JSON")
     args = ap.parse_args(argv)
@@ -177,17 +180,16 @@ def main(argv=None) -> int:
         src = tmp / "in.csv"
         write_csv(src, smiles)
 
-        if args.skip_throughput:
-            smiles = smiles[:200]
-        floor_s = time_floor(smiles)
-        figures["floor_mol_per_s"] = args.rows / floor_s
-        print(f"floor (parse + standardize + {len(FLOOR_SMARTS)} SMARTS), 1 core: "
-              f"{args.rows / floor_s:,.0f} mol/s")
+        if not args.skip_throughput:
+            floor_s = time_floor(smiles)
+            figures["floor_mol_per_s"] = args.rows / floor_s
+            print(f"floor (parse + standardize + {len(FLOOR_SMARTS)} SMARTS), 1 core: "
+                  f"{args.rows / floor_s:,.0f} mol/s")
 
-        mach_s, _ = time_batch(src, 1, evaluator=floor_evaluator, rounds=2)
-        figures["machinery_overhead"] = mach_s / floor_s
-        print(f"batch machinery with the floor as evaluator, jobs=1: {args.rows / mach_s:,.0f} "
-              f"mol/s  (x{mach_s / floor_s:.2f} the floor's time)")
+            mach_s, _ = time_batch(src, 1, evaluator=floor_evaluator, rounds=2)
+            figures["machinery_overhead"] = mach_s / floor_s
+            print(f"batch machinery with the floor as evaluator, jobs=1: "
+                  f"{args.rows / mach_s:,.0f} mol/s  (x{mach_s / floor_s:.2f} the floor's time)")
 
         try:
             import saltplan.plan  # noqa: F401
@@ -196,8 +198,14 @@ def main(argv=None) -> int:
             have_plan = False
             print("plan_salts not available: batch-with-planner figures skipped")
         if have_plan and not args.skip_throughput:
-            for jobs in sorted({1, args.jobs}):
-                dt, failed = time_batch(src, jobs)
+            # rounds interleave the job counts, so that load from elsewhere hits both alike
+            best: dict[int, tuple[float, int]] = {}
+            for _ in range(args.rounds):
+                for jobs in sorted({1, args.jobs}):
+                    dt, failed = time_batch(src, jobs)
+                    if jobs not in best or dt < best[jobs][0]:
+                        best[jobs] = (dt, failed)
+            for jobs, (dt, failed) in sorted(best.items()):
                 per_core = args.rows / dt / jobs
                 figures[f"plan_jobs{jobs}"] = {"seconds": dt, "mol_per_s": args.rows / dt,
                                                "mol_per_s_per_core": per_core,

@@ -184,9 +184,21 @@ def load_design(design_dir: str | Path) -> dict[str, Any]:
     return design_dict(data)
 
 
+def _without_timestamps(value):
+    if isinstance(value, Mapping):
+        return {k: _without_timestamps(v) for k, v in value.items() if k != "created"}
+    if isinstance(value, (list, tuple)):
+        return [_without_timestamps(v) for v in value]
+    return value
+
+
 def design_hash(design: Mapping) -> str:
-    """sha256 of the design's canonical JSON (sorted keys)."""
-    return sha256_text(json.dumps(design, sort_keys=True, ensure_ascii=False, separators=(",", ":")))
+    """sha256 of the design's canonical JSON (sorted keys), creation timestamps left out.
+
+    The same design produced twice has the same hash, whenever it was made.
+    """
+    return sha256_text(json.dumps(_without_timestamps(design), sort_keys=True, ensure_ascii=False,
+                                  separators=(",", ":")))
 
 
 def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None = None) -> Selection:
@@ -235,7 +247,7 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
     created = provenance(
         library_hash=(plan.get("provenance") or {}).get("library_hash"),
         plan_input_hash=(plan.get("provenance") or {}).get("input_hash"),
-        design_hash=design_hash(d), results_file=results.file, results_hash=results.sha256,
+        design_hash=design_hash(d), results_file=Path(results.file).name if results.file else results.file, results_hash=results.sha256,
         thresholds_hash=th.hash)
     return Selection(
         outcome=outcome, summary=summary, shortlist=tuple(shortlist), not_shortlisted=tuple(others),

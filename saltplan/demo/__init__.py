@@ -65,8 +65,34 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
     written += _batch(out)
     if LEAD in designs:
         written += _select(designs[LEAD], out / LEAD)
+    written.append(str(_write_environment(out)))
     summary["written"] = sorted(set(written))
     return summary
+
+
+def rendering_versions() -> dict[str, str]:
+    """Versions of the libraries whose output bytes end up in the reports (drawings, charts)."""
+    from importlib.metadata import version
+
+    from .._version import __version__
+
+    out = {"saltplan": __version__}
+    for dist in ("rdkit", "matplotlib", "jinja2"):
+        try:
+            out[dist] = version(dist)
+        except Exception:  # pragma: no cover - all are dependencies
+            out[dist] = "unknown"
+    return out
+
+
+def _write_environment(out: Path) -> Path:
+    import json
+
+    from .._io import write_text_atomic
+
+    text = json.dumps({"note": "library versions the demo reports were rendered with",
+                       "versions": rendering_versions()}, indent=2) + "\n"
+    return write_text_atomic(out / "environment.json", text)
 
 
 def _write_plan(plan, folder: Path, screen=None) -> list[Path]:
@@ -97,17 +123,15 @@ def _write_screen(design, folder: Path) -> list[Path]:
 
 
 def _batch(out: Path) -> list[str]:
-    try:
-        from ..batch import run_batch_files
-    except ImportError:
-        return []
     import pandas as pd
+
+    from ..batch import run_batch
 
     rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
             for c in load_programme()]
-    frame = pd.DataFrame(rows)
-    return [str(p) for p in run_batch_files(frame, out / "portfolio.csv",
-                                            summary=out / "portfolio-summary.html")]
+    run = run_batch(pd.DataFrame(rows), out / "portfolio.csv", summary=out / "portfolio-summary.html",
+                    dose_column="dose_mg", id_column="id", name_column="name")
+    return [str(p) for p in run.outputs]
 
 
 def _select(design, folder: Path) -> list[str]:

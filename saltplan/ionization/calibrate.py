@@ -22,8 +22,10 @@ from .estimate import ACID_MAX, BASE_MIN, Perception, evaluate, perceive
 
 #: ridge strength and prior scales by parameter family
 LAMBDA = 2.0
-SCALES = {"pka0": 0.7, "rho": 0.35, "beta": 0.35, "alpha": 0.5, "gamma": 0.08, "int": 0.3,
+SCALES = {"pka0": 0.7, "rho": 0.35, "beta": 0.35, "alpha": 0.5, "gamma": 0.08, "int": 0.1,
           "same_ring": 0.1, "c_ar": 0.1}
+#: parameters whose prior was set from textbook parents (kept close) or is a pure guess (free)
+TIGHT = {"beta:C_acid": 0.15, "int:k_base_anion": 0.15}
 HUBER = 1.0
 OUTLIER = 4.0          # residuals beyond this are treated as unassignable (weight ~0)
 
@@ -78,16 +80,27 @@ def predict(entry: Entry, params) -> list[tuple[float, str, str]]:
     return out
 
 
+def predict_all(entry: Entry, params) -> list[float]:
+    """pKa of every perceived site (no window), in record order."""
+    return [pka for pka, _steps in evaluate(entry.perc, params)]
+
+
 def assign(entry: Entry, params) -> list[tuple[float, int | None, float | None]]:
-    """For each measured value: (value, index of closest site, its estimate)."""
-    sites = predict(entry, params)
+    """For each measured value: (value, record index of the closest returned site, estimate).
+
+    The index refers to ``entry.perc.records`` (not to the windowed list), so residuals stay
+    continuous when a site crosses the reporting window during the fit."""
+    values = predict_all(entry, params)
+    shown = [i for i, rec in enumerate(entry.perc.records)
+             if (rec.group.kind == "base" and values[i] >= BASE_MIN)
+             or (rec.group.kind == "acid" and values[i] <= ACID_MAX)]
     res = []
     for v in entry.measured:
-        if not sites:
+        if not shown:
             res.append((v, None, None))
             continue
-        i = min(range(len(sites)), key=lambda k: (abs(sites[k][0] - v), k))
-        res.append((v, i, sites[i][0]))
+        i = min(shown, key=lambda k: (abs(values[k] - v), k))
+        res.append((v, i, values[i]))
     return res
 
 
@@ -172,14 +185,18 @@ def _scale(key: str, prior: float) -> float:
         if group is not None and group.model == "hammett":
             return max(0.12 * abs(prior), 0.1)   # Hammett rho are well established
         return max(SCALES["rho"] * abs(prior), 0.2)
+    if key in TIGHT:
+        return TIGHT[key]
     if fam == "int":
-        return max(SCALES["int"] * abs(prior), 0.1)
+        # the interaction priors come from textbook diamines / diacids / amino acids, which
+        # determine them far better than single measured values of drugs do
+        return max(SCALES["int"] * abs(prior), 0.05)
     return SCALES.get(fam, 0.5)
 
 
 def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[str] | None = None,
-        iterations: int = 12, lam: float = LAMBDA):
-    """Fit; returns ``(params, keys, info)``."""
+        iterations: int = 12, lam: float = LAMBDA, log=None):
+    """Fit; returns ``(params, keys, info)``. ``log(text)`` receives progress lines."""
     import numpy as np
 
     prior = dict(prior or catalogue.prior_parameters())
@@ -213,21 +230,16 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
         p["c_ar"] = min(max(p["c_ar"], 0.2), 1.0)
         return p
 
+    def entry_res(e, asg, p):
+        values = predict_all(e, p)
+        return [0.0 if i is None else values[i] - v for (v, i, _) in asg]
+
     def residuals(theta, assignment):
         p = params_of(theta)
         r = []
         for e, asg in zip(entries, assignment):
-            sites = predict(e, p)
-            for (v, i, _est) in asg:
-                if i is None or i >= len(sites):
-                    r.append(0.0)
-                else:
-                    r.append(sites[i][0] - v)
+            r.extend(entry_res(e, asg, p))
         return np.array(r)
-
-    def entry_res(e, asg, p):
-        sites = predict(e, p)
-        return [0.0 if (i is None or i >= len(sites)) else sites[i][0] - v for (v, i, _) in asg]
 
     theta = theta0.copy()
     mu = 1.0
@@ -260,12 +272,16 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
         g = J.T @ (w * r) + ridge_J.T @ ridge_r
         cost0 = float(np.sum(w * r * r) + np.sum(ridge_r ** 2))
         improved = False
+        if log:
+            log(f"iteration {it}: cost {cost0:.2f}, mu {mu:.3g}, |g| {float(np.linalg.norm(g)):.3g}")
         for _ in range(6):
             step = -np.linalg.solve(A + mu * np.diag(np.diag(A) + 1e-9), g)
             th_new = theta + step
             r_new = residuals(th_new, assignment)
             ridge_new = math.sqrt(lam) * (th_new - theta0) / scales
             cost1 = float(np.sum(w * r_new * r_new) + np.sum(ridge_new ** 2))
+            if log:
+                log(f"    trial cost {cost1:.2f}, max step {float(np.max(np.abs(step / scales))):.3g}")
             if cost1 < cost0:
                 theta, mu, improved = th_new, max(mu / 3, 1e-4), True
                 break

@@ -204,10 +204,10 @@ def intrinsic(rec: SiteRecord, params: dict[str, float], explain: bool = False):
                       f"-{rho:.2f} x {params.get('beta:' + t.type, 0):+.2f} x {gamma:.2f}^{cost - 2:.3g}"
                       + (f" x {t.paths} paths" if t.paths > 1 else "")
                       + (f" x {t.mult:.2f} geminal" if t.mult != 1.0 else "")
-                      + (f" x {params['same_ring']:.2f} same ring" if t.ring else ""))
+                      + (f" x {params['same_ring']:.2f} same ring" if t.ring and t.type != "C_sp3" else ""))
             steps.append(Step(f"{row.get('name', t.type)} at atom {t.atom} ({where})", d, detail,
                               TAFT_SOURCE))
-        if explain and abs(small) >= 0.005:
+        if explain and small != 0.0:
             steps.append(Step("further inductive contributions", small, "sum of terms < 0.05 each",
                               TAFT_SOURCE))
     if explain:

@@ -23,6 +23,7 @@ class MolGraph:
     atom_rings: list[list[int]]                 # ring indices per atom
     ring_bonds: set[tuple[int, int]]
     last_aromatic: dict | None = None
+    last_pred: dict | None = None
 
     @classmethod
     def from_mol(cls, mol) -> "MolGraph":
@@ -82,13 +83,15 @@ class MolGraph:
         ``aromatic_cost``; ``paths`` counts equally cheap paths (capped at 2); ``entry`` is
         True for an aromatic atom reached from a non-aromatic one (first atom of a ring).
         Atoms in ``blocked`` are neither visited nor crossed. The number of aromatic bonds
-        on each best path is left in ``self.last_aromatic``.
+        on each best path is left in ``self.last_aromatic``, each atom's predecessor on it in
+        ``self.last_pred``.
         """
         cost = {start: 0.0}
         hops = {start: 0}
         paths = {start: 1}
         entry = {start: False}
         self.last_aromatic = arom_bonds = {start: 0}
+        self.last_pred = pred = {start: -1}
         heap = [(0.0, 0, start)]
         done = set()
         eps = 1e-9
@@ -109,6 +112,7 @@ class MolGraph:
                     hops[j] = h + 1
                     paths[j] = paths[i]
                     arom_bonds[j] = arom_bonds[i] + (1 if ar else 0)
+                    pred[j] = i
                     entry[j] = self.arom[j] and not ar
                     heapq.heappush(heap, (cj, h + 1, j))
                 elif abs(cj - old) <= eps:

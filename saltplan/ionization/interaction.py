@@ -88,6 +88,7 @@ def sequence(kinds: list[str], intrinsic: list[float], sens: list[float],
                 best = (cand, shift, stat)
         (eff, i), shift, stat = best
         values[i] = eff
+        small = 0.0
         if explain:
             for j in range(n):
                 if j == i or q[j] == 0:
@@ -105,6 +106,10 @@ def sequence(kinds: list[str], intrinsic: list[float], sens: list[float],
                            f"{' (2 paths)' if pair.paths > 1 else ''}, sensitivity {sens[i]:.2f}")
                 if abs(v) >= 0.005:
                     details[i].append((f"charge at atom {atoms[j] if atoms else j}", v, det))
+                else:
+                    small += v
+            if small != 0.0:
+                details[i].append(("further distant charges", small, "sum of shifts < 0.005 each"))
             if stat:
                 details[i].append(("statistical factor", stat,
                                    f"{jth} of {k} equivalent sites: log10({jth}/{k - jth + 1})"))

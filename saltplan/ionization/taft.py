@@ -29,6 +29,7 @@ from .graph import MolGraph
 
 SOURCE = "Taft sigma* (taft_sigma_star.yaml)"
 _HAL = {9: "F", 17: "Cl", 35: "Br", 53: "I"}
+_GROUP_HEADS = frozenset({"C_acid", "C_acid_ester", "C_amide", "S_sulfonyl", "S_sulfinyl"})
 
 
 @dataclass(frozen=True)
@@ -67,10 +68,12 @@ def _type(g: MolGraph, i: int) -> str | None:
             for j, o, a in g.nbrs[i]:
                 if o == 2.0 and not a:
                     if g.z[j] in (8, 16):
-                        het = [g.z[k] for k, ok, _ in g.nbrs[i] if k != j and ok == 1.0]
-                        if 7 in het:
+                        het = [(g.z[k], g.hs[k]) for k, ok, _ in g.nbrs[i] if k != j and ok == 1.0]
+                        if any(zk == 7 for zk, _h in het):
                             return "C_amide"
-                        if 8 in het:
+                        if any(zk == 8 and h for zk, h in het):
+                            return "C_acid"
+                        if any(zk == 8 for zk, _h in het):
                             return "C_acid_ester"
                         return "C_ketone"
                     if g.z[j] == 7:
@@ -142,6 +145,7 @@ def taft_terms(g: MolGraph, types: list[str | None], center: int, blocked: froze
     """Inductive terms seen from ``center`` (parameter-free part; weights applied later)."""
     cost, hops, paths, entry = g.shortest_costs(center, blocked, aromatic_cost, max_cost)
     n_arom = g.last_aromatic
+    pred = g.last_pred
     terms: list[TaftTerm] = []
     gem_count: dict[int, int] = {}
     center_rings = set(g.atom_rings[center])
@@ -150,6 +154,10 @@ def taft_terms(g: MolGraph, types: list[str | None], center: int, blocked: froze
             continue
         t = types[a]
         if t is None:
+            continue
+        # the O / N of a carboxy, ester, amide or sulfonyl group reached through its C or S
+        # belongs to that group's sigma* (CH2CO2Et, CH2CONH2, CH2SO2R): not counted again
+        if g.z[a] in (7, 8) and types[pred[a]] in _GROUP_HEADS:
             continue
         if t == "C_ar":
             if not entry.get(a):
@@ -196,6 +204,6 @@ def term_value(t: TaftTerm, params: dict[str, float], gamma: float | None = None
     if v is None:
         v = params.get("beta:other", 0.0)
     v = v * (gamma ** (cost - 2.0)) * t.paths * t.mult
-    if t.ring:
+    if t.ring and t.type != "C_sp3":   # a field effect needs a polar group (no alkyl C)
         v *= params["same_ring"]
     return v

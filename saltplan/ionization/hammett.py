@@ -154,7 +154,7 @@ def hammett_terms(g: MolGraph, anchor: int, match: frozenset[int], family: str,
                 terms.append(HammettTerm(f"{pname} {row['name']}", sigma,
                                          f"sigma {sigma:+.2f}", RULE_SOURCE, 0.1))
         for x, order, ar in g.nbrs[a]:
-            if x in ring_set or x in match or x in skip_atoms:
+            if x in ring_set or x in skip_atoms:
                 continue
             if ar:
                 for k in g.atom_rings[a]:
@@ -162,6 +162,8 @@ def hammett_terms(g: MolGraph, anchor: int, match: frozenset[int], family: str,
                         continue
                     fused_done.add(k)
                     terms.extend(_fused_term(g, k, ring_set, pos, size, match, fam, table, notes))
+                continue
+            if x in match:
                 continue
             key, fallback = describe(g, x, a)
             row = table.get(key) or table["fallback"]
@@ -199,9 +201,12 @@ def _fused_term(g: MolGraph, k: int, ring_set: set[int], pos: dict[int, int], si
     fring = g.rings[k]
     shared = [a for a in fring if a in ring_set]
     outside = [a for a in fring if a not in ring_set]
-    if outside and all(a in match for a in outside):
-        return []  # the fused ring is part of the parent class (quinoline, benzimidazole ...)
     out: list[HammettTerm] = []
+    if outside and all(a in match for a in outside):
+        # the fused ring is part of the parent class (quinoline, benzimidazole ...): only
+        # substituents on it count
+        out.extend(_remote_terms(g, fring, ring_set, outside, match, table))
+        return out
     ppos = sorted(pos[a] for a in shared) or [2]
     benzo = fam.get("benzo") or [0.1, 0.05]
     sigma = float(benzo[0] if ppos[0] <= 1 else benzo[1])
@@ -222,8 +227,15 @@ def _fused_term(g: MolGraph, k: int, ring_set: set[int], pos: dict[int, int], si
         notes.append("fused heteroaromatic ring estimated from its contents (" + ", ".join(parts) + ")")
     out.append(HammettTerm("fused ring" + (f" ({', '.join(parts)})" if parts else " (benzo)"),
                            sigma, f"sigma {sigma:+.2f}", RULE_SOURCE, extra))
-    factor = float(rules["remote_factor"])
+    out.extend(_remote_terms(g, fring, ring_set, outside, match, table))
+    return out
+
+
+def _remote_terms(g: MolGraph, fring, ring_set, outside, match, table) -> list[HammettTerm]:
+    """Substituents on a fused ring: attenuated sigma_m (``remote_factor``)."""
+    factor = float(hammett_rules()["remote_factor"])
     fset = set(fring)
+    out: list[HammettTerm] = []
     for a in outside:
         for x, order, ar in g.nbrs[a]:
             if x in fset or x in ring_set or x in match or ar:

@@ -124,6 +124,16 @@ def test_textbook_series_mae():
     ("CN1CCN(C)CC1", "amine_tertiary"),
     ("Cc1cc[nH]n1", "pyrazole"),
     ("C[N+](C)([O-])C", "amine_oxide"),
+    ("CN(C)C(=N)NC(N)=N", "biguanide"),                                # metformin
+    ("Clc1cccc(Cl)c1NC1=NCCN1", "guanidine_aryl"),                      # clonidine
+    ("Nc1cc[nH]c(=O)n1", "cytosine"),
+    ("O=c1cc[nH]c(=O)[nH]1", "uracil_n3h"),
+    ("O=C1NC(=O)C(Cc2ccccc2)S1", "thiazolidinedione"),
+    ("CN1C(C(=O)Nc2ccccn2)=C(O)c2ccccc2S1(=O)=O", "enol_13dicarbonyl"),  # piroxicam
+    ("CN1C(=O)CN=C(c2ccccc2)c2cc(Cl)ccc21", "imine_aryl"),               # diazepam
+    ("NS(=O)(=O)OCC1CCCCC1", "sulfamate"),
+    ("CCCCC1C(=O)N(c2ccccc2)N(c2ccccc2)C1=O", "pyrazolidinedione"),      # phenylbutazone
+    ("CC(=O)Nc1nccs1", "acylaminothiazole_nh"),
 ])
 def test_group_coverage(smiles, group_id):
     ids = {s.group_id for s in estimate_all(read_structure(smiles).mol)}
@@ -142,6 +152,21 @@ def test_group_coverage(smiles, group_id):
 def test_not_basic_or_acidic(smiles):
     # amide, carbamate, urea, sulfonamide and nitrile N are not basic in water (domain.md §2.2)
     assert ionizable_sites(smiles) == []
+
+
+@pytest.mark.parametrize("smiles, expected, tol, source", [
+    # values not used to set any parameter
+    ("CCN(CC)CCCC(C)Nc1ccnc2cc(Cl)ccc12", 8.1, 0.5, "chloroquine quinoline N, Perrin 1972 (from memory)"),
+    ("Cc1ncc([N+](=O)[O-])n1CCO", 2.6, 0.7, "metronidazole, Perrin 1972 (from memory)"),
+    ("Nc1ccc(S(=O)(=O)Nc2ncccn2)cc1", 6.4, 0.7, "sulfadiazine N-H, Perrin et al. 1981 (from memory)"),
+    ("CCC1(c2ccccc2)C(=O)NC(=O)NC1=O", 7.4, 0.5, "phenobarbital, Perrin et al. 1981 (from memory)"),
+    ("OC(=O)c1cn(C2CC2)c2cc(N3CCNCC3)c(F)cc2c1=O", 6.1, 0.5, "ciprofloxacin COOH (from memory)"),
+    ("NCCc1c[nH]cn1", 6.0, 0.5, "histamine imidazole, Perrin 1965 (from memory)"),
+])
+def test_drug_values(smiles, expected, tol, source):
+    values = [s.pka for s in ionizable_sites(smiles)]
+    best = min(values, key=lambda v: abs(v - expected))
+    assert abs(best - expected) <= tol, f"{source}: got {best:.2f}"
 
 
 def test_conjugated_amine_is_not_aliphatic():

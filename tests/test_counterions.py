@@ -157,6 +157,7 @@ CHECKED_ON_PAGES = {
     # pages read through the search tool in the second review (values as printed on the page);
     # tolerance 0.05 where the page prints the same table value, wider where it prints another set
     "hydrochloride": ([-5.9], 0.3, "'Sulfonation process' (exiraso.com) quoting pKa(aq) -5.9"),
+    "hydrobromide": ([-9.0], 0.3, "University of Waterloo 'Acid Ionization Constants in Water at 25 °C' (about -9)"),
     "nitrate": ([-1.4], 0.05, "textbook table 'pKa values for some Lowry-Brønsted acids' (Table 3.3)"),
     "phosphate": ([2.13, 7.20, 12.36], 0.05, "University of Sydney 'Ionisation Constants of Acids in Water Solution at 298 K'"),
     "acetate": ([4.757], 0.01, "LibreTexts 'E5: Acid Dissociation Constants of Organics' (Martell & Smith)"),

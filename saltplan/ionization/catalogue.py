@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import functools
 from dataclasses import dataclass, field
-from typing import Any
 
 from ..errors import ParameterError
 

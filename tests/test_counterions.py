@@ -314,6 +314,9 @@ def test_domain_liabilities_flagged(lib):
     # anhydrous piperazine: GHS Skin Corr. 1B, H314 (supplier SDS 'Piperazine' CAS 110-85-0;
     # ECHA registration dossier, skin corrosion endpoint: corrosive)
     assert lib.get("piperazine").has_flag("corrosive")
+    # naphthalene-2-sulfonic acid: corrosive to metals cat. 1, skin corrosion, UN class 8
+    # (safety data sheet 'Naphthalene sulphonate', CAS 120-18-3)
+    assert lib.get("napsylate").has_flag("corrosive")
     assert lib.get("zinc").flags == ()
     assert "lithium" not in lib   # pharmacologically active, not used as a counterion
     with pytest.raises(CounterionLibraryError, match="unknown flag"):

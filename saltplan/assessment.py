@@ -22,7 +22,8 @@ from typing import Any, Iterable, Sequence
 from .errors import ParameterError
 from .stoichiometry import (  # noqa: F401 - re-exported: part of this module's public API
     MASS_SOURCE, Composition, Option, compose, counterion_pkas, hill_formula, is_cation_base,
-    parse_stoichiometry, pka_source, salt_pka, salt_pka_index, stoichiometry_options)
+    option_clears, parse_stoichiometry, pka_source, required_delta_pka, salt_pka,
+    salt_pka_index, stoichiometry_options)
 
 CATEGORIES = ("salt_expected", "likely", "uncertain", "unlikely")
 THRESHOLD_SOURCE = ("rule of thumb ΔpKa ≥ 2–3 (common practice; Stahl & Wermuth 2011); "
@@ -189,6 +190,7 @@ class Candidate:
     score: float = 0.0
     breakdown: dict = field(default_factory=dict, compare=False, hash=False)
     rank: int = 0
+    counterion_rank: int = 0      # rank of the counterion, each counted once by its best entry
     caveats: tuple[Caveat, ...] = ()
     ph_max: float | None = None
     ph_max_basis: str | None = None
@@ -210,6 +212,7 @@ class Candidate:
     def to_dict(self) -> dict[str, Any]:
         return {
             "rank": self.rank,
+            "counterion_rank": self.counterion_rank,
             "counterion": self.counterion,
             "counterion_name": self.counterion_name,
             "stoichiometry": self.stoichiometry,
@@ -248,7 +251,7 @@ def ranking_key(score: float, dpka: float, counterion: str, stoichiometry: str) 
 # --------------------------------------------------------------------------- assessment
 def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float = 2.0,
            thresholds: Thresholds = DEFAULT_THRESHOLDS, slope: float = 0.17,
-           intercept: float = 0.28) -> list[Candidate]:
+           intercept: float = 0.28, zwitterion_allowance: float = 0.0) -> list[Candidate]:
     """All counterion × stoichiometry candidates for an API (unranked, no caveats yet).
 
     Parameters
@@ -262,6 +265,11 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
         ``feasible`` = limiting ΔpKa ≥ this [pKa units] (default 2, common practice).
     thresholds : Thresholds
         Category limits.
+    zwitterion_allowance : float
+        A transfer onto a zwitterion's carboxylate-type site (or from its ammonium-type site)
+        is feasible from ``min_delta_pka − zwitterion_allowance`` (see
+        :func:`saltplan.stoichiometry.required_delta_pka`); category and probability still
+        follow its ΔpKa.
 
     Returns
     -------
@@ -270,7 +278,7 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
     """
     out: list[Candidate] = []
     for ion in library:
-        for opt in stoichiometry_options(sites, ion, min_delta_pka):
+        for opt in stoichiometry_options(sites, ion, min_delta_pka, zwitterion_allowance):
             comp = compose(parent.smiles, ion, opt)
             limiting = opt.limiting
             transfers = tuple(
@@ -283,7 +291,9 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
                          counterion_pka_index=i, counterion_pka_source=pka_source(ion, i),
                          delta_pka=d, note=opt.notes[k] if opt.notes else None)
                 for k, ((site, i), d) in enumerate(zip(opt.pairs, opt.delta_pkas)))
-            feasible = limiting >= min_delta_pka
+            feasible = option_clears(opt, min_delta_pka, zwitterion_allowance)
+            need = min(required_delta_pka(n, min_delta_pka, zwitterion_allowance)
+                       for n in (opt.notes or (None,)))
             sites_used = tuple(dict.fromkeys(site.atom for site, _ in opt.pairs))
             out.append(Candidate(
                 counterion=ion.id, counterion_name=str(getattr(ion, "name", ion.id)),
@@ -296,5 +306,6 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
                 salt_smiles=comp.salt_smiles, counterion_mass_per_api=comp.counterion_mass_per_api,
                 tier=getattr(ion, "tier", None),
                 reason=None if feasible else
-                f"ΔpKa {limiting:.2f} below the minimum {min_delta_pka:g}"))
+                f"ΔpKa {limiting:.2f} below the minimum {need:g}"
+                + (" (zwitterion allowance applied)" if need != min_delta_pka else "")))
     return out

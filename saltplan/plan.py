@@ -245,7 +245,8 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
     # sites outside the salt range (acid pKa > 12, base pKa < 1) are shown, not paired
     relevant = tuple(s for s in sites if getattr(s, "salt_relevant", True))
     raw = assess(parent, relevant, library, min_delta_pka=min_delta_pka, thresholds=thresholds,
-                 slope=float(prob["slope"]), intercept=float(prob["intercept"]))
+                 slope=float(prob["slope"]), intercept=float(prob["intercept"]),
+                 zwitterion_allowance=float(cfg.data["zwitterion"]["allowance"]))
 
     ranked, excluded = _score_and_rank(raw, library, parent, features, sol, cfg,
                                        dose_mg=dose_mg, route=route)
@@ -281,7 +282,7 @@ def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route)
     """pHmax, slurry pH, caveats and score of every candidate; (ranked, excluded)."""
     from .assessment import ranking_key
     from .caveats import candidate_caveats
-    from .ranking import rank_order, score_candidate
+    from .ranking import counterion_ranks, rank_order, score_candidate
     from .solubility import ph_max as solubility_ph_max
     from .solubility import slurry_ph
 
@@ -314,8 +315,11 @@ def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route)
         key = ranking_key(score, cand.delta_pka, cand.counterion, cand.stoichiometry)
         scored.append((_Keyed(cand.feasible, key), cand, fields))
     good, bad = rank_order(scored, key=lambda x: x[0])
-    ranked = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(good, start=1)]
-    excluded = [replace(c, rank=i, **f) for i, (_, c, f) in enumerate(bad, start=len(ranked) + 1)]
+    ci_rank = counterion_ranks(good, bad, key=lambda x: x[1])
+    ranked = [replace(c, rank=i, counterion_rank=ci_rank[c.counterion], **f)
+              for i, (_, c, f) in enumerate(good, start=1)]
+    excluded = [replace(c, rank=i, counterion_rank=ci_rank[c.counterion], **f)
+                for i, (_, c, f) in enumerate(bad, start=len(ranked) + 1)]
     return ranked, excluded
 
 
@@ -327,6 +331,7 @@ def _settings(cfg, min_delta_pka, dose_mg) -> dict[str, Any]:
     prob = cfg.data["probability"]
     return {
         "min_delta_pka": min_delta_pka,
+        "zwitterion_min_delta_pka": min_delta_pka - float(cfg.data["zwitterion"]["allowance"]),
         "probability": f"P = clip({prob['slope']}·ΔpKa + {prob['intercept']}, 0, 1) "
                        "(Cruz-Cabeza 2012; from memory)",
         "weights_source": cfg.source,

@@ -6,10 +6,11 @@ score = Σ weight·term, each term in 0..1, bonuses added and penalties subtract
   API site's pKa (saturates near ΔpKa 4, above which crystal structures are almost only
   salts; Cruz-Cabeza 2012);
 * ``tier`` — acceptability tier of the counterion (Stahl & Wermuth 2011, as in the library);
-* ``precedence`` — how often the counterion appears in marketed salts (common practice);
+* ``precedence`` — log of the counterion's share among marketed salts of its kind (Berge,
+  Bighley, Monkhouse, J. Pharm. Sci. 1977, 66, 1, Table I; see :func:`precedence_score`);
 * ``mass`` — (1 − drug content) scaled by the daily dose (matters more at high dose);
-* ``liabilities`` — one penalty per counterion flag, stronger when the API's structure
-  triggers it (see :mod:`saltplan.caveats`);
+* ``liabilities`` — one penalty per counterion flag (times an optional per-counterion
+  ``flag_strength``), stronger when the API's structure triggers it (see :mod:`saltplan.caveats`);
 * ``hygroscopicity`` — tendency of the counterion's salts to take up water;
 * ``disproportionation`` — pHmax against a typical formulation microenvironment pH;
 * ``slurry_disproportionation`` — pHmax against the pH of the salt's own saturated solution
@@ -39,7 +40,8 @@ BREAKDOWN_KEYS = ("delta_pka_margin", "tier", "precedence", "mass", "liabilities
                   "stoichiometry")
 #: sections whose keys are open (new flags, counterion ids, tiers may be added)
 _OPEN_SECTIONS = {"liability_penalties", "exposure_mg_day", "tier_scores",
-                  "hygroscopicity_scores", "stoichiometry_scores"}
+                  "hygroscopicity_scores", "stoichiometry_scores", "anions", "cations",
+                  "flag_strength"}
 
 
 @dataclass(frozen=True)
@@ -154,6 +156,15 @@ def _check(cfg: RankingConfig, origin: str) -> None:
         raise ParameterError("must be > 0", file=origin, field="margin.saturation")
     if cfg.data["slurry"]["span"] <= 0:
         raise ParameterError("must be > 0", file=origin, field="slurry.span")
+    if cfg.data["zwitterion"]["allowance"] < 0:
+        raise ParameterError("must be ≥ 0", file=origin, field="zwitterion.allowance")
+    if cfg.data["precedence"]["floor_percent"] <= 0:
+        raise ParameterError("must be > 0", file=origin, field="precedence.floor_percent")
+    for kind in ("anions", "cations"):
+        for key, value in cfg.data["precedence"][kind].items():
+            if value < 0 or value > 100:
+                raise ParameterError(f"share must be 0–100 %, got {value}", file=origin,
+                                     field=f"precedence.{kind}.{key}")
     if cfg.data["disproportionation"]["span"] <= 0:
         raise ParameterError("must be > 0", file=origin, field="disproportionation.span")
 
@@ -197,12 +208,38 @@ def slurry_risk(ph_max: float | None, slurry_ph: float | None, counterion_role: 
     return _clip01((ph_max + d["safe_margin"] - slurry_ph) / d["span"])
 
 
-def precedence_score(counterion_id: str, cfg: RankingConfig) -> float:
+def precedence_share(counterion_id: str, role: str, cfg: RankingConfig) -> float | None:
+    """Published share [% of salts of its kind] of a counterion, None when not tabulated.
+
+    ``role`` is the counterion's role: acids form anionic salts (``precedence.anions``),
+    bases cationic ones (``precedence.cations``).
+    """
+    table = cfg.data["precedence"]["anions" if role == "acid" else "cations"]
+    share = table.get(counterion_id)
+    return None if share is None else float(share)
+
+
+def precedence_score(counterion_id: str, cfg: RankingConfig, role: str = "acid") -> float:
+    """0..1 from the counterion's share among marketed salts, on a log scale.
+
+    term = clip(log10(share / floor) / log10(top / floor), 0, 1) with ``top`` the largest
+    share of that kind (hydrochloride among anions, sodium among cations) and ``floor`` =
+    ``precedence.floor_percent``. Ids not in the table score 0.
+
+    >>> cfg = load_ranking_config()
+    >>> precedence_score("hydrochloride", cfg, "acid"), precedence_score("sodium", cfg, "base")
+    (1.0, 1.0)
+    """
     p = cfg.data["precedence"]
-    for level in ("very_frequent", "frequent", "established", "rare"):
-        if counterion_id in p[level]:
-            return float(p["scores"][level])
-    return float(p["scores"]["other"])
+    share = precedence_share(counterion_id, role, cfg)
+    if share is None or share <= 0:
+        return 0.0
+    table = p["anions" if role == "acid" else "cations"]
+    top = max(float(v) for v in table.values())
+    floor = float(p["floor_percent"])
+    if top <= floor:
+        return 0.0
+    return _clip01(math.log10(share / floor) / math.log10(top / floor))
 
 
 def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
@@ -228,7 +265,9 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
     mass = (1.0 - candidate.drug_content / 100.0) * dose_factor(dose_mg, cfg)
     penalties = cfg.data["liability_penalties"]
     factor = cfg.data["api_trigger_factor"]
-    liab = sum(float(penalties.get(f, 0.0)) * (factor if f in triggered else 1.0)
+    strength = cfg.data.get("flag_strength", {}).get(candidate.counterion, {}) or {}
+    liab = sum(float(penalties.get(f, 0.0)) * float(strength.get(f, 1.0))
+               * (factor if f in triggered else 1.0)
                for f in dict.fromkeys(getattr(ion, "flags", ()) or ()))
     hyg_scores = cfg.data["hygroscopicity_scores"]
     hyg = float(hyg_scores.get(str(getattr(ion, "hygroscopicity", None) or "unknown"),
@@ -248,7 +287,8 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
     breakdown = {
         "delta_pka_margin": w["delta_pka_margin"] * margin,
         "tier": w["tier"] * tier_term,
-        "precedence": w["precedence"] * precedence_score(candidate.counterion, cfg),
+        "precedence": w["precedence"] * precedence_score(candidate.counterion, cfg,
+                                                         getattr(ion, "role", "acid")),
         "mass": -w["mass"] * mass,
         "liabilities": -w["liabilities"] * liab,
         "hygroscopicity": -w["hygroscopicity"] * hyg,
@@ -266,11 +306,34 @@ def order(candidates: Iterable[Candidate]) -> list[Candidate]:
 
 
 def rank(candidates: Iterable[Candidate]) -> tuple[list[Candidate], list[Candidate]]:
-    """Split scored candidates into (feasible ranked 1…n, excluded ranked n+1…)."""
+    """Split scored candidates into (feasible ranked 1…n, excluded ranked n+1…).
+
+    Each candidate also gets ``counterion_rank`` (see :func:`counterion_ranks`).
+    """
     feasible, excluded = rank_order(candidates, key=lambda c: c)
-    ranked = [replace(c, rank=i) for i, c in enumerate(feasible, start=1)]
+    ranks = counterion_ranks(feasible, excluded, key=lambda c: c)
+    ranked = [replace(c, rank=i, counterion_rank=ranks[c.counterion])
+              for i, c in enumerate(feasible, start=1)]
     start = len(ranked) + 1
-    return ranked, [replace(c, rank=i) for i, c in enumerate(excluded, start=start)]
+    return ranked, [replace(c, rank=i, counterion_rank=ranks[c.counterion])
+                    for i, c in enumerate(excluded, start=start)]
+
+
+def counterion_ranks(feasible: list, excluded: list, key=lambda c: c) -> dict[str, int]:
+    """Rank of each counterion, counted once by its best entry (1 = best).
+
+    ``rank`` numbers every counterion × stoichiometry row; a counterion with two feasible
+    stoichiometries (sulfate 1:1 and 2:1) would otherwise push the next counterion down one
+    place. Counterions with a feasible entry come first, in the order of their best feasible
+    row; counterions with only infeasible entries follow, by their best excluded row. All
+    rows of a counterion share its ``counterion_rank``.
+    """
+    out: dict[str, int] = {}
+    for item in list(feasible) + list(excluded):
+        ci = key(item).counterion
+        if ci not in out:
+            out[ci] = len(out) + 1
+    return out
 
 
 def rank_order(items: Iterable, key) -> tuple[list, list]:

@@ -158,10 +158,19 @@ def salt_sites(sites: Sequence, counterion_role: str) -> list[tuple[Any, int, st
 
     Returns ``(site whose pKa enters ΔpKa, atom that gains/loses the proton, note)``.
     An acid counterion protonates basic sites (most basic first), a base deprotonates
-    acidic sites (most acidic first). A zwitterion (most basic pKa above the most acidic
-    one) is internally ionized in its neutral form: an acid must protonate the carboxylate-
-    type site (its pKa enters ΔpKa) and a base must take the proton of the ammonium-type
-    site (its pKa enters ΔpKa, the drawn anion loses the acidic H).
+    acidic sites (most acidic first).
+
+    A zwitterion (most basic pKa above the most acidic one) is internally ionized in its
+    neutral form: its most basic site already holds the proton of its most acidic site.
+    An acid counterion then protonates the strongest proton acceptor left: a further basic
+    site (lysine's second amine, histidine's imidazole) or else the carboxylate-type site,
+    whose acid pKa enters ΔpKa (glycine hydrochloride). A base counterion likewise takes the
+    proton of the most acidic donor left: a further acidic site, or else the ammonium-type
+    site, whose pKa enters ΔpKa (the drawn anion loses the acidic H). Transfers onto the
+    carboxylate-type / from the ammonium-type site carry a note (see
+    :func:`is_zwitterion_transfer`). Textbook pattern: pKa sequence of amino acids, the
+    neutral form being the zwitterion (e.g. lysine 2.18 / 8.95 / 10.53; CRC Handbook, from
+    memory).
     """
     bases = _site_order(sites, "base")
     acids = _site_order(sites, "acid")
@@ -170,16 +179,49 @@ def salt_sites(sites: Sequence, counterion_role: str) -> list[tuple[Any, int, st
         if zwitterion:
             note = (f"zwitterion: the base site (atom {bases[0].atom}, pKa {bases[0].pka:.1f}) is "
                     f"already protonated; the acid must protonate atom {acids[0].atom}")
-            return [(acids[0], acids[0].atom, note)] + [(b, b.atom, None) for b in bases[1:]]
+            left = [(b.pka, b.atom, (b, b.atom, None)) for b in bases[1:]]
+            left.append((acids[0].pka, acids[0].atom, (acids[0], acids[0].atom, note)))
+            return [x for _, _, x in sorted(left, key=lambda t: (-t[0], t[1]))]
         return [(b, b.atom, None) for b in bases]
     if zwitterion:
         note = (f"zwitterion: the acidic site (atom {acids[0].atom}, pKa {acids[0].pka:.1f}) is "
                 f"already ionized; the base must take the proton of atom {bases[0].atom}")
-        return [(bases[0], acids[0].atom, note)] + [(a, a.atom, None) for a in acids[1:]]
+        left = [(a.pka, a.atom, (a, a.atom, None)) for a in acids[1:]]
+        left.append((bases[0].pka, bases[0].atom, (bases[0], acids[0].atom, note)))
+        return [x for _, _, x in sorted(left, key=lambda t: (t[0], t[1]))]
     return [(a, a.atom, None) for a in acids]
 
 
-def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> list[Option]:
+def is_zwitterion_transfer(note: str | None) -> bool:
+    """True for a transfer onto a zwitterion's carboxylate-type (or from its ammonium-type)
+    site, as marked by :func:`salt_sites`."""
+    return bool(note) and str(note).startswith("zwitterion:")
+
+
+def required_delta_pka(note: str | None, min_delta_pka: float,
+                       zwitterion_allowance: float = 0.0) -> float:
+    """Minimum ΔpKa one proton transfer must reach [pKa units].
+
+    ``min_delta_pka`` for ordinary transfers; ``min_delta_pka − zwitterion_allowance`` for a
+    transfer onto a zwitterion's carboxylate-type site (or from its ammonium-type site).
+    Common practice: amino acids and other zwitterions form cationic salts with acids clearly
+    stronger than their own carboxylic acid (pKa below about 2: hydrochlorides, hydrogen
+    maleates, hydrogen oxalates; anionic salts likewise with strong bases), although the
+    ΔpKa against the carboxylate is small (from memory).
+    """
+    return min_delta_pka - (zwitterion_allowance if is_zwitterion_transfer(note) else 0.0)
+
+
+def option_clears(option: "Option", min_delta_pka: float,
+                  zwitterion_allowance: float = 0.0) -> bool:
+    """Every proton transfer of ``option`` reaches its required ΔpKa."""
+    notes = option.notes or (None,) * len(option.delta_pkas)
+    return all(d >= required_delta_pka(n, min_delta_pka, zwitterion_allowance)
+               for d, n in zip(option.delta_pkas, notes))
+
+
+def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0,
+                          zwitterion_allowance: float = 0.0) -> list[Option]:
     """The stoichiometries worth considering for one counterion.
 
     Parameters
@@ -190,6 +232,9 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
         A library entry; its role decides which API sites it pairs with.
     min_delta_pka : float
         ΔpKa a *second* proton transfer must reach before 2:1 / 1:2 salts are proposed.
+    zwitterion_allowance : float
+        How much lower the minimum is for a transfer onto a zwitterion's carboxylate-type
+        site (see :func:`required_delta_pka`).
 
     Returns
     -------
@@ -245,7 +290,7 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
         # ... or from one API with enough acidic sites (dianion + Ca²⁺)
         if valence == 2 and s2 is not None:
             o = opt("1:1", 1, 1, [(s1, idx[0]), (s2, idx[1])], [b1, b2], [n1, n2])
-            if o.limiting >= min_delta_pka:
+            if option_clears(o, min_delta_pka, zwitterion_allowance):
                 options.append(o)
         return options
 
@@ -257,14 +302,14 @@ def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0) -> l
     # k API per counterion: the counterion's k-th pKa must also qualify against the API site
     for k in range(2, len(polyprotic) + 1):
         o = opt(f"{k}:1", k, 1, [(s1, i) for i in polyprotic[:k]], [b1] * k, [n1] * k)
-        if o.delta_pkas[-1] < min_delta_pka:
+        if o.delta_pkas[-1] < required_delta_pka(n1, min_delta_pka, zwitterion_allowance):
             break
         options.append(o)
     # bis-salt: the API's second site with a second (monoprotic) counterion
     monoprotic = len(polyprotic) == 1 or (cation is not None and cation[1] == 1)
     if s2 is not None and monoprotic:
         o = opt("1:2", 1, 2, [(s1, first), (s2, first)], [b1, b2], [n1, n2])
-        if o.limiting >= min_delta_pka:
+        if option_clears(o, min_delta_pka, zwitterion_allowance):
             options.append(o)
     return options
 

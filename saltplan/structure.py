@@ -25,6 +25,9 @@ DEFAULT_MAX_HEAVY_ATOMS = 150
 #: a second organic component at least this fraction of the largest one's heavy-atom
 #: count is "of similar size": we cannot tell which is the API and ask the user.
 SIMILAR_SIZE_FRACTION = 0.5
+#: more disconnected components than this is not a drawn salt or solvate (API, counterions,
+#: water, solvent molecules); refused before each one is canonicalized.
+MAX_COMPONENTS = 64
 
 _NONMETALS = {"H", "B", "C", "N", "O", "F", "Si", "P", "S", "Cl", "Se", "Br", "I",
               "He", "Ne", "Ar", "Kr", "Xe", "As", "Te", "At"}
@@ -199,7 +202,50 @@ def _looks_like_molblock(text: str) -> bool:
     return "M  END" in text or "V2000" in text or "V3000" in text
 
 
-def _parse(source: str, messages: list[str]):
+_ATOM_TOKEN = re.compile(r"\[[^\]]*\]|Br|Cl|[BCNOSPFI]|[bcnosp]|\*")
+_HYDROGEN_TOKEN = re.compile(r"\[\d*H(?![a-z])")    # [H], [2H], [H+]; not [Hg], [He]
+
+
+def check_smiles_text(smi: str, max_heavy_atoms: int = DEFAULT_MAX_HEAVY_ATOMS) -> None:
+    """Refuse SMILES text RDKit would misread or take minutes over, before parsing it.
+
+    RDKit stops reading at the first character it does not know and keeps what came
+    before (``"CCN\u00e9"`` reads as ``CCN``), so any character outside printable ASCII is
+    refused here, naming its position. A dot-separated piece of a SMILES is connected, so
+    a piece with more heavy-atom tokens than ``max_heavy_atoms`` is a component over the
+    cap: refused without parsing (ring perception of 10^4 fused rings takes minutes).
+
+    Raises
+    ------
+    StructureError
+    """
+    for pos, ch in enumerate(smi):
+        if not 33 <= ord(ch) <= 126:
+            shown = ch if ch.isprintable() else f"U+{ord(ch):04X}"
+            raise StructureError(f"character '{shown}' at position {pos + 1} of the SMILES is "
+                                 "not allowed (SMILES is printable ASCII)")
+    pieces = smi.split(".")
+    if len(pieces) > MAX_COMPONENTS:
+        raise StructureError(f"{len(pieces)} disconnected components exceeds the limit of "
+                             f"{MAX_COMPONENTS}: give the API with its counterions and solvents")
+    for piece in pieces:
+        tokens = _ATOM_TOKEN.findall(piece)
+        heavy = sum(1 for t in tokens if not _HYDROGEN_TOKEN.match(t))
+        if heavy > max_heavy_atoms:
+            raise StructureError(f"{heavy} heavy atoms exceeds the limit of {max_heavy_atoms} "
+                                 "(raise it with --max-atoms if this is intended)")
+
+
+def _is_file(candidate: Path) -> bool:
+    """``Path.is_file`` that answers False for text no file system accepts as a name
+    (too long a name, a NUL byte) instead of raising."""
+    try:
+        return candidate.is_file()
+    except (OSError, ValueError):
+        return False
+
+
+def _parse(source: str, messages: list[str], max_heavy_atoms: int = DEFAULT_MAX_HEAVY_ATOMS):
     """Parse a SMILES string, a MOL block, or a MOL/SDF file path. Returns (mol, name)."""
     from rdkit import Chem
 
@@ -212,7 +258,7 @@ def _parse(source: str, messages: list[str]):
         low = text.lower()
         if low.endswith((".mol", ".sdf", ".sd", ".mdl")):
             path = candidate
-        elif candidate.is_file():
+        elif _is_file(candidate):
             path = candidate
     if path is not None:
         return _read_structure_file(path, messages)
@@ -222,12 +268,14 @@ def _parse(source: str, messages: list[str]):
             raise StructureError(f"MOL block could not be read: RDKit says {_rdkit_reason(messages)}")
         name = mol.GetProp("_Name").strip() if mol.HasProp("_Name") else None
         return mol, (name or None)
-    if any(ch.isspace() for ch in text):
-        # a SMILES may carry a title after whitespace ("CCO ethanol")
-        smi, _, title = text.partition(" ")
-        text, name = smi, title.strip() or None
-    else:
-        name = None
+    if "\n" in text or "\r" in text:
+        n_lines = len([ln for ln in text.splitlines() if ln.strip()])
+        raise StructureError(f"structure text holds {n_lines} lines; give one SMILES (or a "
+                             "MOL block), or use 'saltplan batch' for many")
+    # a SMILES may carry a title after whitespace ("CCO ethanol", tab-separated too)
+    smi, *rest = text.split(None, 1)
+    text, name = smi, (rest[0].strip() if rest else "") or None
+    check_smiles_text(text, max_heavy_atoms)
     mol = Chem.MolFromSmiles(text)
     if mol is None:
         shown = text if len(text) <= 60 else text[:57] + "..."
@@ -328,12 +376,16 @@ def _disconnect_salt_metals(mol):
     from rdkit import Chem
 
     bonds = []
-    for bond in mol.GetBonds():
-        a, b = bond.GetBeginAtom(), bond.GetEndAtom()
-        for metal, other in ((a, b), (b, a)):
-            if metal.GetSymbol() in _SALT_METALS and other.GetSymbol() in {"O", "N", "S", "F", "Cl", "Br", "I"}:
+    # walk from the metal atoms (few) rather than over every bond: RDKit's Python bond
+    # sequence is slow to index on very large molecules
+    for metal in mol.GetAtoms():
+        if metal.GetSymbol() not in _SALT_METALS:
+            continue
+        for bond in metal.GetBonds():
+            other = bond.GetOtherAtom(metal)
+            if other.GetSymbol() in {"O", "N", "S", "F", "Cl", "Br", "I"}:
                 bonds.append((metal.GetIdx(), other.GetIdx(), int(bond.GetBondTypeAsDouble())))
-                break
+    bonds.sort()
     if not bonds:
         return mol
     rw = Chem.RWMol(mol)
@@ -381,6 +433,17 @@ def standardize(mol, *, source: str = "", name: str | None = None,
     mol = Chem.RemoveHs(mol)
     mol = _disconnect_salt_metals(mol)
     frags = list(Chem.GetMolFrags(mol, asMols=True, sanitizeFrags=True))
+    # Refuse oversized input before any canonicalization: canonical SMILES of a very large
+    # fragment (e.g. a 10^5-atom chain) takes minutes. The largest organic fragment is the
+    # API (the component table holds only small molecules), so this is the same refusal as
+    # the heavy-atom cap below, made early.
+    largest = max((f.GetNumHeavyAtoms() for f in frags if _has_carbon(f)), default=0)
+    if largest > max_heavy_atoms:
+        raise StructureError(f"{largest} heavy atoms exceeds the limit of {max_heavy_atoms} "
+                             "(raise it with --max-atoms if this is intended)")
+    if len(frags) > MAX_COMPONENTS:
+        raise StructureError(f"{len(frags)} disconnected components exceeds the limit of "
+                             f"{MAX_COMPONENTS}: give the API with its counterions and solvents")
 
     table, metal_names = _component_table()
     organic, known_organic, stripped_raw = [], [], []
@@ -526,7 +589,7 @@ def read_structure(source, *, name: str | None = None,
             if source is None:
                 raise StructureError("empty structure input")
             text = str(source)
-            mol, found = _parse(text, messages)
+            mol, found = _parse(text, messages, max_heavy_atoms)
         try:
             return standardize(mol, source=text.strip(), name=name or found,
                                max_heavy_atoms=max_heavy_atoms)

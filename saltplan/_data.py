@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import functools
 import hashlib
+import re
 from importlib.resources import files
 from pathlib import Path
 from typing import Any
@@ -60,18 +61,100 @@ _UniqueKeyLoader.add_constructor(
     yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _construct_mapping)
 
 
+#: a YAML document expanding to more nodes than this (aliases counted each time they are
+#: used) is refused: an "alias bomb" of nine nested aliases expands to 10^8 strings.
+MAX_YAML_NODES = 1_000_000
+
+
+def _expanded_size(root) -> int | None:
+    """Nodes of a composed YAML graph with aliases expanded (memoized, linear time).
+
+    None for a recursive document (an alias inside its own anchor), which no data file needs.
+    """
+    sizes: dict[int, int] = {}
+    open_nodes: set[int] = set()
+    stack = [(root, False)]
+    while stack:
+        node, children_done = stack.pop()
+        key = id(node)
+        if key in sizes:
+            continue
+        if isinstance(node, yaml.MappingNode):
+            kids = [n for pair in node.value for n in pair]
+        elif isinstance(node, yaml.SequenceNode):
+            kids = list(node.value)
+        else:
+            sizes[key] = 1
+            continue
+        if children_done:
+            open_nodes.discard(key)
+            sizes[key] = 1 + sum(sizes[id(k)] for k in kids)
+            if sizes[key] > MAX_YAML_NODES:
+                return sizes[key]
+            continue
+        if key in open_nodes:
+            return None
+        open_nodes.add(key)
+        stack.append((node, True))
+        for kid in kids:
+            if id(kid) in open_nodes:
+                return None
+            if id(kid) not in sizes:
+                stack.append((kid, False))
+    return sizes[id(root)]
+
+
+#: deeper flow nesting (``[[[...]]]``) than this is refused before parsing: libyaml's
+#: composer recurses in C and a 10^5-deep document crashes the interpreter.
+MAX_YAML_DEPTH = 100
+_QUOTED_OR_COMMENT = re.compile(r'"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|#[^\n]*')
+_BRACKETS = re.compile(r"[\[\]{}]")
+
+
+def _flow_depth(text: str) -> int:
+    """Deepest nesting of flow brackets outside quoted strings and comments."""
+    depth = deepest = 0
+    for match in _BRACKETS.finditer(_QUOTED_OR_COMMENT.sub("", text)):
+        if match.group() in "[{":
+            depth += 1
+            deepest = max(deepest, depth)
+        else:
+            depth = max(depth - 1, 0)
+    return deepest
+
+
 def load_yaml_text(text: str, origin: str, error=ParameterError) -> Any:
     """Parse YAML safely (no object construction), refusing duplicate keys.
 
-    Errors come back as ``error`` (a SaltplanError subclass) naming ``origin`` and the line.
+    Tags that construct Python objects (``!!python/object/apply:...``) are refused by the
+    safe loader; documents whose aliases expand beyond :data:`MAX_YAML_NODES` nodes are
+    refused before construction. Errors come back as ``error`` (a SaltplanError subclass)
+    naming ``origin`` and the line.
     """
+    if _flow_depth(text) > MAX_YAML_DEPTH:
+        raise error(f"YAML nested deeper than {MAX_YAML_DEPTH} levels; refused", file=origin)
+    loader = _UniqueKeyLoader(text)
     try:
-        return yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - SafeLoader subclass
+        node = loader.get_single_node()
+        if node is None:
+            return None
+        size = _expanded_size(node)
+        if size is None:
+            raise error("recursive YAML alias (an alias inside its own anchor); refused",
+                        file=origin)
+        if size > MAX_YAML_NODES:
+            raise error(f"YAML aliases expand to more than {MAX_YAML_NODES:,} nodes; "
+                        "refused (write the values out)", file=origin)
+        return loader.construct_document(node)
+    except RecursionError:
+        raise error("YAML nested too deeply; refused", file=origin) from None
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         where = f" (line {mark.line + 1})" if mark is not None else ""
         problem = getattr(exc, "problem", None) or str(exc).splitlines()[0]
         raise error(f"not valid YAML{where}: {problem}", file=origin) from None
+    finally:
+        loader.dispose()
 
 
 def load_yaml_path(path: str | Path, error=ParameterError) -> Any:

@@ -236,11 +236,22 @@ def check_smiles_text(smi: str, max_heavy_atoms: int = DEFAULT_MAX_HEAVY_ATOMS) 
                                  "(raise it with --max-atoms if this is intended)")
 
 
+#: text ending like this is a file name (missing file: "not found", not "unparsable SMILES")
+_FILE_SUFFIXES = (".mol", ".sdf", ".sd", ".mdl", ".smi", ".smiles", ".txt")
+
+
 def _is_file(candidate: Path) -> bool:
     """``Path.is_file`` that answers False for text no file system accepts as a name
     (too long a name, a NUL byte) instead of raising."""
     try:
         return candidate.is_file()
+    except (OSError, ValueError):
+        return False
+
+
+def _is_dir(candidate: Path) -> bool:
+    try:
+        return candidate.is_dir()
     except (OSError, ValueError):
         return False
 
@@ -256,12 +267,12 @@ def _parse(source: str, messages: list[str], max_heavy_atoms: int = DEFAULT_MAX_
     if len(text) < 4096 and "\n" not in text:
         candidate = Path(text)
         low = text.lower()
-        if low.endswith((".mol", ".sdf", ".sd", ".mdl")):
+        if low.endswith(_FILE_SUFFIXES):
             path = candidate
-        elif _is_file(candidate):
+        elif _is_file(candidate) or _is_dir(candidate):
             path = candidate
     if path is not None:
-        return _read_structure_file(path, messages)
+        return _read_structure_file(path, messages, max_heavy_atoms)
     if _looks_like_molblock(source):
         mol = Chem.MolFromMolBlock(source, sanitize=True, removeHs=True)
         if mol is None:
@@ -283,7 +294,8 @@ def _parse(source: str, messages: list[str], max_heavy_atoms: int = DEFAULT_MAX_
     return mol, name
 
 
-def _read_structure_file(path: Path, messages: list[str]):
+def _read_structure_file(path: Path, messages: list[str],
+                         max_heavy_atoms: int = DEFAULT_MAX_HEAVY_ATOMS):
     from rdkit import Chem
 
     if not path.exists():
@@ -318,7 +330,12 @@ def _read_structure_file(path: Path, messages: list[str]):
     if len(lines) != 1:
         raise StructureError(f"file holds {len(lines)} SMILES lines; give one structure, or use "
                              "'saltplan batch' for many", file=str(path))
-    smi, _, title = lines[0].partition(" ")
+    smi, *rest = lines[0].split(None, 1)
+    title = rest[0] if rest else ""
+    try:
+        check_smiles_text(smi, max_heavy_atoms)
+    except StructureError as exc:
+        raise StructureError(exc.message, file=str(path)) from None
     mol = Chem.MolFromSmiles(smi)
     if mol is None:
         raise StructureError(f"unparsable SMILES: RDKit says {_rdkit_reason(messages)}", file=str(path))

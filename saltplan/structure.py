@@ -269,7 +269,7 @@ def _parse(source: str, messages: list[str], max_heavy_atoms: int = DEFAULT_MAX_
         low = text.lower()
         if low.endswith(_FILE_SUFFIXES):
             path = candidate
-        elif _is_file(candidate) or _is_dir(candidate):
+        elif _is_file(candidate) or ("/" in text and _is_dir(candidate)):
             path = candidate
     if path is not None:
         return _read_structure_file(path, messages, max_heavy_atoms)

@@ -21,11 +21,13 @@ reviewed by qualified staff.
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any, Mapping
 
 from ._data import sha256_text
+from .errors import ParameterError
 from ._provenance import provenance
 from .select_criteria import (HYGROSCOPICITY_CLASSES, HYGROSCOPICITY_TEXT, Thresholds,
                               hygroscopicity_class, load_thresholds, required_solubility_mg_ml)
@@ -169,19 +171,11 @@ class Selection:
 
 # --------------------------------------------------------------------------- entry points
 def load_design(design_dir: str | Path) -> dict[str, Any]:
-    """Read ``DESIGN_DIR/design.json`` (or a design.json path) written by the screen step."""
-    from .errors import InputFileError
+    """Read ``DESIGN_DIR/design.json`` (or a design.json path) written by the screen step
+    (see :func:`saltplan.select_design.load_design`: valid JSON, shape checked)."""
+    from .select_design import load_design as _load
 
-    path = Path(design_dir)
-    if path.is_dir():
-        path = path / "design.json"
-    if not path.exists():
-        raise InputFileError("design.json not found (write it with `saltplan screen`)", file=str(path))
-    try:
-        data = json.loads(path.read_text(encoding="utf-8-sig"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise InputFileError(f"not a readable design.json ({exc})", file=str(path)) from None
-    return design_dict(data)
+    return _load(design_dir)
 
 
 def _without_timestamps(value):
@@ -228,6 +222,9 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
     plan = d.get("plan") or {}
     if dose_mg is not None:
         dose, dose_source = float(dose_mg), "user, given with the command"
+        if not math.isfinite(dose) or dose <= 0:
+            raise ParameterError(f"dose must be a finite number above 0 mg, got {dose_mg!r}",
+                                 field="dose_mg")
     else:
         dose = (plan.get("inputs") or {}).get("dose_mg")
         dose_source = "user, plan input" if dose else "not given"

@@ -213,17 +213,29 @@ def _norm_header(text: str) -> str:
     return "_".join(text.strip().lower().replace("-", " ").split())
 
 
+#: control characters other than tab, CR and LF: never typed in a sheet, a sign of a
+#: binary or damaged file (and a NUL would reach the decision record)
+_CONTROL_RE = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
+
+
 def _decode(data: bytes, origin: str) -> str:
     if data.startswith((b"\xff\xfe", b"\xfe\xff")):
         try:
-            return data.decode("utf-16")
+            text = data.decode("utf-16")
         except UnicodeDecodeError as exc:
             raise ResultsError(f"not valid UTF-16 text (byte {exc.start})", file=origin) from None
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise ResultsError(f"not UTF-8 text (byte {exc.start}); save the sheet as 'CSV UTF-8'",
-                           file=origin) from None
+    else:
+        try:
+            text = data.decode("utf-8-sig")
+        except UnicodeDecodeError as exc:
+            raise ResultsError(f"not UTF-8 text (byte {exc.start}); save the sheet as 'CSV UTF-8'",
+                               file=origin) from None
+    bad = _CONTROL_RE.search(text)
+    if bad:
+        line = text.count("\n", 0, bad.start()) + 1
+        raise ResultsError(f"control character U+{ord(bad.group()):04X} on line {line}: "
+                           "binary or damaged file, expected CSV text", file=origin)
+    return text
 
 
 class _Lines:

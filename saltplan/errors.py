@@ -60,3 +60,7 @@ class InputFileError(SaltplanError, ValueError):
 
 class ResultsError(SaltplanError, ValueError):
     """A screen-results file does not match its design or holds impossible values."""
+
+
+class OutputFileError(SaltplanError, OSError):
+    """An output file or folder cannot be written (not a folder, no permission, disk full)."""

@@ -9,32 +9,10 @@ MODE_CHOICES = ("slurry", "cooling", "evaporation", "antisolvent")
 
 
 def _parse_pka(values):
-    """``--pka 8.1`` / ``--pka base=8.1`` / ``--pka 12=8.1`` / ``--pka amine_tertiary=8.1``.
+    """``--pka`` values, parsed as ``saltplan plan`` parses them (one syntax, one message)."""
+    from .plan import _parse_measured
 
-    Plain numbers become a list (each replaces the nearest estimate); KEY=VALUE pairs a
-    mapping (atom index when KEY is a whole number, else "acid"/"base" or a group id).
-    """
-    if not values:
-        return None
-    plain, keyed = [], {}
-    for text in values:
-        key, sep, value = text.partition("=")
-        if not sep:
-            key, value = None, text
-        try:
-            number = float(value)
-        except ValueError:
-            raise click.BadParameter(f"'{text}' is not a pKa value (e.g. 8.1 or base=8.1)",
-                                     param_hint="--pka") from None
-        if key is None:
-            plain.append(number)
-        else:
-            key = key.strip()
-            keyed[int(key) if key.isdigit() else key] = number
-    if plain and keyed:
-        raise click.BadParameter("use either plain values or KEY=VALUE pairs, not both",
-                                 param_hint="--pka")
-    return keyed or plain
+    return _parse_measured(values)
 
 
 def _parse_budgets(values):

@@ -39,10 +39,42 @@ def programme_name() -> str:
 
 
 def run_demo(out_dir: str | Path) -> dict[str, Any]:
-    """Run the whole pipeline over the demo programme; return a summary of what was written."""
-    from ..plan import plan_salts
+    """Run the whole pipeline over the demo programme; return a summary of what was written.
+
+    Everything is written into a hidden staging folder beside ``out_dir`` first and moved
+    into place only when every step succeeded, so a failure part-way leaves ``out_dir`` as
+    it was (no half-written demo).
+    """
+    import shutil
+    import tempfile
 
     out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        from ..errors import OutputFileError
+        raise OutputFileError("output path exists and is not a folder", file=str(out))
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+        stage = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".part", dir=out.parent))
+    except OSError as exc:
+        from ..errors import OutputFileError
+        raise OutputFileError(f"cannot write output: {exc.strerror or exc}", file=str(out)) from None
+    try:
+        summary = _run_demo(stage)
+        moved = []
+        for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
+            target = out / rel
+            target.parent.mkdir(parents=True, exist_ok=True)
+            (stage / rel).replace(target)
+            moved.append(str(target))
+        summary["written"] = moved
+        return summary
+    finally:
+        shutil.rmtree(stage, ignore_errors=True)
+
+
+def _run_demo(out: Path) -> dict[str, Any]:
+    from ..plan import plan_salts
+
     written: list[str] = []
     summary: dict[str, Any] = {"programme": programme_name(), "compounds": []}
     designs = {}

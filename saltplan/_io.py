@@ -96,7 +96,7 @@ class OutputSet:
             except BaseException:
                 # renames within one folder rarely fail; if one does, take back the files
                 # this commit created so the set is not left half-written
-                for later, _ in staged[i + 1:]:
+                for later, _ in staged[i:]:
                     with contextlib.suppress(FileNotFoundError):
                         os.unlink(later)
                 for done, was_there in zip(written, existed):

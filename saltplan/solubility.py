@@ -198,6 +198,16 @@ def _sig(x: float, digits: int = 4) -> float:
 
 
 # --------------------------------------------------------------------------- estimation
+def _check_representable(log_s: float, mw: float, method: str) -> None:
+    """Refuse an estimate so far below any real solubility that it underflows to 0 mg/mL
+    (very large structures allowed by a raised --max-atoms)."""
+    s0 = 10 ** log_s * mw if log_s > -400 else 0.0
+    if not (math.isfinite(s0) and s0 > 0):
+        raise ParameterError(f"estimated intrinsic solubility (log S {log_s:.0f} mol/L, {method}) "
+                             "is outside any range the model was fitted on; give a measured "
+                             "value with --s0", field="s0")
+
+
 def intrinsic_solubility(mol, *, melting_point_c: float | None = None,
                          user_mg_ml: float | None = None) -> IntrinsicSolubility:
     """Intrinsic solubility S0 of the free form [mg/mL].
@@ -230,6 +240,7 @@ def intrinsic_solubility(mol, *, melting_point_c: float | None = None,
             raise ParameterError(f"melting point must be between -100 and 500 °C, got "
                                  f"{melting_point_c!r}", field="melting_point_c")
         log_s = gse_log_s(logp, melting_point_c)
+        _check_representable(log_s, mw, "GSE")
         return IntrinsicSolubility(10 ** log_s * mw, log_s, "GSE", "estimated",
                                    f"{GSE_SOURCE}; log P: {LOGP_SOURCE}",
                                    (("logp", logp), ("melting_point_c", float(melting_point_c)),
@@ -238,6 +249,7 @@ def intrinsic_solubility(mol, *, melting_point_c: float | None = None,
     ap = sum(1 for a in mol.GetAtoms() if a.GetIsAromatic()) / heavy
     rb = rdMolDescriptors.CalcNumRotatableBonds(mol)
     log_s = esol_log_s(logp, mw, rb, ap)
+    _check_representable(log_s, mw, "ESOL")
     return IntrinsicSolubility(10 ** log_s * mw, log_s, "ESOL", "estimated",
                                f"{ESOL_SOURCE}; clogP: {LOGP_SOURCE}",
                                (("clogp", logp), ("mw", mw), ("rotatable_bonds", rb),

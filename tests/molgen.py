@@ -60,3 +60,25 @@ random_text = st.text(
 
 # strings that look almost like SMILES: more likely to reach deep parser paths
 smiles_like = st.text(alphabet="CNOSPFIBrcl()[]=#@+-123456789.%/\\Hn ", min_size=0, max_size=60)
+
+# components a chemist draws beside the API (counterions, water, solvents): the parent
+# must come out the same with or without them
+SALT_PARTNERS = ["Cl", "Br", "O", "O.O", "CS(=O)(=O)O", "OC(=O)/C=C\\C(=O)O", "[Na+]",
+                 "OS(=O)(=O)O", "CCO", "OC(=O)C(O)C(O)C(=O)O"]
+
+
+@st.composite
+def salted_smiles(draw) -> tuple[str, str]:
+    """``(free_form, drawn_as_salt)``: a drug-like SMILES and the same with partners added."""
+    base = draw(drug_like_smiles())
+    partners = draw(st.lists(st.sampled_from(SALT_PARTNERS), min_size=1, max_size=3))
+    return base, ".".join([base] + partners)
+
+
+# text with the characters that break naive readers: controls, quotes, separators, BOM,
+# bidi overrides, NUL, surrogate-free astral characters
+hostile_text = st.text(
+    alphabet=st.one_of(
+        st.sampled_from(list("\x00\x01\x07\x1b\t\r\n\"',;|<>&%$#{}[]\\\ufeff\u202e\u2028")),
+        st.characters(blacklist_categories=("Cs",), min_codepoint=1)),
+    min_size=0, max_size=60)

@@ -213,6 +213,10 @@ def _norm_header(text: str) -> str:
     return "_".join(text.strip().lower().replace("-", " ").split())
 
 
+#: longest cell accepted, whatever the process-wide ``csv.field_size_limit`` is (csv's
+#: default; a note is a few lines, not a document)
+MAX_CELL_CHARS = 131072
+
 #: control characters other than tab, CR and LF: never typed in a sheet, a sign of a
 #: binary or damaged file (and a NUL would reach the decision record)
 _CONTROL_RE = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
@@ -403,6 +407,12 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
     try:
         for cells in reader:
             row = lines.index
+            long = next((i for i, c in enumerate(cells) if len(c) > MAX_CELL_CHARS), None)
+            if long is not None:
+                where = header[long] if header is not None and long < len(header) else None
+                raise ResultsError(f"cell of {len(cells[long]):,} characters exceeds the limit of "
+                                   f"{MAX_CELL_CHARS:,} (not a results sheet?)", file=origin,
+                                   row=row, field=where)
             if not any(c.strip() for c in cells):
                 continue
             if header is None:

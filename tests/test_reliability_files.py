@@ -354,3 +354,20 @@ def test_batch_bom_crlf_same_as_plain(cli, tmp_path):
     assert cli("batch", plain, "--out", a, "--quiet").exit_code == 0
     assert cli("batch", odd, "--out", b, "--quiet").exit_code == 0
     assert json.loads(a.read_text(encoding="utf-8")) == json.loads(b.read_text(encoding="utf-8"))
+
+
+@pytest.mark.xfail(reason="batch_input._raise_field_limit raises csv.field_size_limit for the "
+                          "whole process (global side effect: other CSV readers in the same "
+                          "process then accept unbounded cells); owned by the batch helper",
+                   strict=True)
+def test_batch_leaves_the_csv_field_limit_alone(tmp_path):
+    from saltplan.batch import run_batch
+
+    csv.field_size_limit(131072)
+    src = tmp_path / "in.csv"
+    src.write_text("id,smiles\nr1,CCN\n", encoding="utf-8")
+    run_batch(str(src), str(tmp_path / "out.csv"))
+    try:
+        assert csv.field_size_limit() == 131072
+    finally:
+        csv.field_size_limit(131072)

@@ -95,8 +95,12 @@ def test_screen_never_crashes_on_drug_like(smiles):
 def test_random_text_gives_a_result_or_a_saltplan_error(text):
     from saltplan.ionization.report import sites_report
     from saltplan.plan import plan_salts
+    from saltplan.screen_output import screen_structure
 
-    for call in (sites_report, plan_salts):
+    def screen(t):
+        return screen_structure(t, 500)[0]
+
+    for call in (sites_report, plan_salts, screen):
         try:
             result = call(text)
         except SaltplanError as exc:

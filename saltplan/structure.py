@@ -416,12 +416,26 @@ def _disconnect_salt_metals(mol):
     return out
 
 
+@functools.lru_cache(maxsize=1)
+def _uncharger():
+    from rdkit.Chem.MolStandardize import rdMolStandardize
+
+    return rdMolStandardize.Uncharger()
+
+
+@functools.lru_cache(maxsize=None)
+def _pattern(smarts: str):
+    """A compiled SMARTS query (cached): atom tests in C++ instead of Python loops."""
+    from rdkit import Chem
+
+    return Chem.MolFromSmarts(smarts)
+
+
 def _neutral_canonical(frag) -> str:
     """Canonical SMILES of a fragment with charges neutralized (for matching components)."""
     from rdkit import Chem
-    from rdkit.Chem.MolStandardize import rdMolStandardize
 
-    un = rdMolStandardize.Uncharger()
+    un = _uncharger()
     try:
         neutral = un.uncharge(Chem.Mol(frag))
     except Exception:  # pragma: no cover - defensive
@@ -430,7 +444,7 @@ def _neutral_canonical(frag) -> str:
 
 
 def _has_carbon(mol) -> bool:
-    return any(a.GetAtomicNum() == 6 for a in mol.GetAtoms())
+    return mol.HasSubstructMatch(_pattern("[#6]"))
 
 
 def standardize(mol, *, source: str = "", name: str | None = None,
@@ -438,7 +452,6 @@ def standardize(mol, *, source: str = "", name: str | None = None,
     """Standardize an RDKit molecule to its parent. See :func:`read_structure`."""
     from rdkit import Chem
     from rdkit.Chem import rdMolDescriptors
-    from rdkit.Chem.MolStandardize import rdMolStandardize
 
     notes: list[str] = []
     if mol.GetNumAtoms() == 0:
@@ -470,7 +483,8 @@ def standardize(mol, *, source: str = "", name: str | None = None,
             if metals:
                 raise StructureError(f"organometallic or metal complex ({', '.join(metals)} bound in "
                                      "an organic component): not supported")
-            key = _neutral_canonical(frag)
+            # a lone organic component is the API whatever it is: no need to match it
+            key = Chem.MolToSmiles(frag) if len(frags) == 1 else _neutral_canonical(frag)
             if key in table:
                 known_organic.append((frag, key))
             else:
@@ -530,23 +544,30 @@ def standardize(mol, *, source: str = "", name: str | None = None,
         raise StructureError(f"{heavy} heavy atoms exceeds the limit of {max_heavy_atoms} "
                              "(raise it with --max-atoms if this is intended)")
 
-    charged_before = sum(abs(a.GetFormalCharge()) for a in api.GetAtoms())
-    uncharger = rdMolStandardize.Uncharger()
-    parent = uncharger.uncharge(api)
-    Chem.SanitizeMol(parent)
-    charged_after = sum(abs(a.GetFormalCharge()) for a in parent.GetAtoms())
-    if charged_before and charged_after < charged_before:
-        notes.append("charges neutralized to the free form")
-    if any(a.GetFormalCharge() > 0 and a.GetSymbol() == "N" and a.GetTotalNumHs() == 0
-           and not a.GetIsAromatic() and a.GetDegree() == 4 for a in parent.GetAtoms()):
-        notes.append("permanent positive charge (quaternary ammonium) kept")
+    charged = _pattern("[!+0]")
+    if api.HasSubstructMatch(charged):
+        charged_before = sum(abs(api.GetAtomWithIdx(i).GetFormalCharge())
+                             for (i,) in api.GetSubstructMatches(charged))
+        parent = _uncharger().uncharge(api)
+        Chem.SanitizeMol(parent)
+        charged_after = sum(abs(parent.GetAtomWithIdx(i).GetFormalCharge())
+                            for (i,) in parent.GetSubstructMatches(charged))
+        if charged_after < charged_before:
+            notes.append("charges neutralized to the free form")
+        if parent.HasSubstructMatch(_pattern("[N+;H0;D4]")):
+            notes.append("permanent positive charge (quaternary ammonium) kept")
+    else:
+        parent = api
     if len(api_frags) > 1:
         notes.append(f"API drawn {len(api_frags)} times: counted as a {len(api_frags)}:n salt")
 
     smiles = Chem.MolToSmiles(parent, isomericSmiles=True)
     parent = Chem.MolFromSmiles(smiles)  # atom order of the canonical SMILES
-    unassigned = [c for c in Chem.FindMolChiralCenters(parent, includeUnassigned=True,
-                                                        useLegacyImplementation=False) if c[1] == "?"]
+    unassigned = []
+    if parent.HasSubstructMatch(_pattern("[CX4,SX3,SX4,PX4,NX4+]")):  # possible stereocentres only
+        unassigned = [c for c in Chem.FindMolChiralCenters(parent, includeUnassigned=True,
+                                                            useLegacyImplementation=False)
+                      if c[1] == "?"]
     if unassigned:
         notes.append(f"{len(unassigned)} stereocentre(s) undefined in the input")
 

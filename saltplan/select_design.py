@@ -121,7 +121,8 @@ def load_design(design_dir: str | Path) -> dict[str, Any]:
     if path.is_dir():
         path = path / "design.json"
     if not path.exists():
-        raise InputFileError("design.json not found (write it with `saltplan screen`)", file=str(path))
+        raise InputFileError("design.json not found (write it with `saltplan screen`)",
+                             file=str(path))
     if path.is_dir():
         raise InputFileError("is a directory, expected design.json", file=str(path))
     try:

@@ -132,3 +132,58 @@ def test_successful_runs_leave_no_temporaries(cli, tmp_path, screened):
     names = files_under(out)
     assert names and not [n for n in names if n.rsplit("/", 1)[-1].startswith(".")]
     assert json.loads((out / "plan" / "plan.json").read_text(encoding="utf-8"))["parent"]
+
+
+def test_io_errors_name_the_path(tmp_path, monkeypatch):
+    import os
+
+    import saltplan._io as io_mod
+    from saltplan.errors import InputFileError, OutputFileError
+
+    blocker = tmp_path / "blocker"
+    blocker.write_text("x", encoding="utf-8")
+    with pytest.raises(OutputFileError, match="blocker"):
+        io_mod.write_text_atomic(blocker / "a.txt", "text")
+    with pytest.raises(InputFileError, match="not a folder"):
+        out = io_mod.OutputSet(blocker)
+        out.add("a.txt", "x")
+        out.commit()
+
+    # a write error while staging (disk full) removes every temporary staged so far
+    real_fdopen = os.fdopen
+    calls = []
+
+    def full_disk(fd, *a, **k):
+        calls.append(fd)
+        if len(calls) == 2:
+            os.close(fd)
+            raise OSError(28, "No space left on device")
+        return real_fdopen(fd, *a, **k)
+
+    monkeypatch.setattr(io_mod.os, "fdopen", full_disk)
+    out = io_mod.OutputSet(tmp_path / "out")
+    out.add("a.txt", "a")
+    out.add("b.txt", "b")
+    with pytest.raises(OutputFileError, match="No space left"):
+        out.commit()
+    assert files_under(tmp_path / "out") == []
+    monkeypatch.undo()
+
+    # a failing rename (e.g. target is a folder) is an OutputFileError, temporary removed
+    (tmp_path / "dir_target").mkdir()
+    (tmp_path / "dir_target" / "inner").mkdir()
+    with pytest.raises(OutputFileError, match="inner"):
+        io_mod.write_bytes_atomic(tmp_path / "dir_target" / "inner", b"x")
+    assert files_under(tmp_path / "dir_target") == []
+
+
+def test_demo_command_json(cli, tmp_path, monkeypatch):
+    """The demo command prints its summary; the pipeline itself is checked by test_demo."""
+    fake = {"programme": "Heron (invented)", "written": ["a", "b"],
+            "compounds": [{"code": "HRN-1", "role": "lead", "verdict": "salt_candidates",
+                           "top": ["hydrochloride 1:1"], "wells": 40}]}
+    monkeypatch.setattr("saltplan.demo.run_demo", lambda out: fake)
+    res = cli("demo", "--out", tmp_path / "r", "--json")
+    assert res.exit_code == 0 and json.loads(res.stdout) == fake
+    res = cli("demo", "--out", tmp_path / "r")
+    assert res.exit_code == 0 and "HRN-1" in res.stdout and "2 files" in res.stdout

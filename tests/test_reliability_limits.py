@@ -39,7 +39,8 @@ def ladder(n: int, aromatic: bool) -> str:
 def _ring_count(smiles: str) -> int:
     from rdkit import Chem
 
-    return Chem.MolFromSmiles(smiles).GetRingInfo().NumRings()
+    mol = Chem.MolFromSmiles(smiles)   # keep a reference: RingInfo does not own the molecule
+    return mol.GetRingInfo().NumRings()
 
 
 PATHOLOGICAL = {

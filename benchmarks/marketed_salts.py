@@ -28,10 +28,11 @@ def load_rows():
 
 
 def rank_of(plan_dict, counterion):
+    """Rank of the counterion (each counterion counted once, by its best stoichiometry)."""
     ids = ALIASES.get(counterion, (counterion,))
     for cand in plan_dict["candidates"]:
         if cand["counterion"] in ids:
-            return cand["rank"], cand["feasible"], cand["stoichiometry"]
+            return cand.get("counterion_rank", cand["rank"]), cand["feasible"], cand["stoichiometry"]
     return None, False, None
 
 

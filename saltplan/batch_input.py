@@ -23,6 +23,7 @@ Conventions
 from __future__ import annotations
 
 import codecs
+import contextlib
 import csv
 import sys
 from dataclasses import dataclass, replace
@@ -223,18 +224,18 @@ class CsvSource(Source):
         self.layout = _layout(header, spec, self.label)
 
     def _header(self, fh) -> list[str]:
-        _raise_field_limit()
         try:
-            for fields in csv.reader(fh, strict=True):
-                if any(f.strip() for f in fields):
-                    return [f.strip() for f in fields]
+            with _wide_fields():
+                for fields in csv.reader(fh, strict=True):
+                    if any(f.strip() for f in fields):
+                        return [f.strip() for f in fields]
         except csv.Error as exc:
             raise InputFileError(f"header row is not valid CSV: {exc}", file=self.label) from None
         raise InputFileError("empty file (no header, no rows)", file=self.label)
 
     def records(self) -> Iterator[Record]:
         lay, width = self.layout, self.layout.width
-        with open(self.path, encoding="utf-8-sig", newline="") as fh:
+        with _wide_fields(), open(self.path, encoding="utf-8-sig", newline="") as fh:
             reader = csv.reader(fh, strict=True)
             seen_header = False
             row = 0
@@ -266,16 +267,26 @@ class CsvSource(Source):
         return _chunked(self.records(), size)
 
 
-def _raise_field_limit() -> None:
-    # csv's default 128 KiB field limit would stop the file at one huge cell; huge SMILES
-    # are refused per row by the structure reader instead.
+@contextlib.contextmanager
+def _wide_fields():
+    """Lift csv's field-size limit while this file is read, and put it back afterwards.
+
+    csv's default 128 KiB limit would stop the file at one huge cell; huge SMILES are
+    refused per row by the structure reader instead. The limit is process-wide, so it is
+    restored when reading ends (other CSV readers keep their protection).
+    """
+    previous = csv.field_size_limit()
     limit = sys.maxsize
     while True:
         try:
             csv.field_size_limit(limit)
-            return
+            break
         except OverflowError:  # pragma: no cover - 32-bit C long
             limit //= 2
+    try:
+        yield
+    finally:
+        csv.field_size_limit(previous)
 
 
 class SdfSource(Source):

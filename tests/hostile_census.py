@@ -48,7 +48,7 @@ CLASSES = {
         "batch: one bad row (1 MB SMILES, 3 × 10^5 ring atoms, junk, line break) is a row error, neighbours planned",
     ("files", "test_batch_bom_crlf_same_as_plain"): "batch FILE with BOM / CRLF: same table",
     ("files", "test_batch_leaves_the_csv_field_limit_alone"):
-        "batch leaves csv's process-wide field limit alone (known bug in batch_input, xfail)",
+        "batch leaves csv's process-wide field limit alone (restored after reading)",
     ("yaml", "test_hostile_yaml_refused"):
         "YAML at 8 options: python tags, alias bombs, recursive alias, 10^5 nesting, duplicate keys, encodings",
     ("yaml", "test_directory_or_missing_file_is_refused"): "YAML option given a folder or a missing file",

@@ -12,57 +12,16 @@ from __future__ import annotations
 
 import functools
 import json
-import re
 from pathlib import Path
 
 from ._data import package_file
 from ._io import OutputSet
+from .reports.markdown import MdRaw, md_escape  # one neutralizer for all Markdown output
 
 TEMPLATES = ("select_templates",)
 FILES = ("decision.html", "decision.md", "selection.json")
 
 # --------------------------------------------------------------------------- Markdown safety
-#: ASCII punctuation with a Markdown meaning anywhere in a line (CommonMark 0.31 §2.4:
-#: any ASCII punctuation may be backslash-escaped)
-_MD_ALWAYS = frozenset("\\`*_[]<>#|~&{}!")
-#: block markers that only count at the start of a line: list items ("- ", "+ ", "1. ",
-#: "1) "), thematic breaks and setext underlines ("---", "===")
-_MD_LINE_START = re.compile(r"^(\s*)([-+=](?=[-+=\s]|$)|\d{1,9}(?=[.)](?:\s|$)))")
-_MD_SCHEME = re.compile(r"([A-Za-z][A-Za-z0-9+.-]{0,31}):(?=//)")
-_MD_WWW = re.compile(r"\b([wW]{3})\.")
-
-
-class MdRaw(str):
-    """Markdown built by the record code itself (not user text)."""
-
-
-def md_escape(value) -> str:
-    """Text that renders literally in CommonMark / GitHub Markdown.
-
-    Newlines collapse to spaces, punctuation with a Markdown meaning is
-    backslash-escaped, a block marker at the start is escaped, and URL schemes, ``www.``
-    and ``@`` are broken so that no autolink forms.
-
-    >>> md_escape("[x](http://a.b) <i>")
-    '\\\\[x\\\\](http\\\\://a.b) \\\\<i\\\\>'
-    """
-    if isinstance(value, MdRaw):
-        return value
-    text = " ".join(str(value).split())
-    text = "".join("\\" + ch if ch in _MD_ALWAYS else ch for ch in text)
-    text = _MD_SCHEME.sub(lambda m: m.group(1) + "\\:", text)
-    text = _MD_WWW.sub(lambda m: m.group(1) + "\\.", text)
-    text = text.replace("@", "\\@")
-    m = _MD_LINE_START.match(text)
-    if m:
-        marker = m.group(2)
-        if marker.isdigit():
-            text = m.group(1) + marker + "\\" + text[m.end():]
-        else:
-            text = m.group(1) + "\\" + marker + text[m.end():]
-    return MdRaw(text)
-
-
 def _md_finalize(value):
     if value is None:
         return MdRaw("")

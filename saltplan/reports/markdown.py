@@ -16,11 +16,11 @@ import re
 
 #: characters escaped wherever they appear: emphasis, code, links/images, HTML, tables,
 #: headings, strikethrough, entity references
-_ALWAYS = set("\\`*_[]<>#|~&{}")
+_ALWAYS = frozenset("\\`*_[]<>#|~&{}!")   # "!" too: "![x](...)" is an image
 #: block markers that need a following space (or the end) to start a list / setext heading
 _LINE_START = re.compile(r"^(\s*)([-+=]|\d{1,9}[.)])(?=\s|$)")
 _RULE = re.compile(r"^(\s*)([-=])(?=[-=\s]*$)")     # "---" thematic break, "===" setext
-_SCHEME = re.compile(r"([A-Za-z][A-Za-z0-9+.-]{1,31}):(?=//)")
+_SCHEME = re.compile(r"([A-Za-z][A-Za-z0-9+.-]{0,31}):(?=//)")
 _WWW = re.compile(r"\b([wW]{3})\.")
 _MAILISH = re.compile(r"@")
 

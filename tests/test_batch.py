@@ -2,7 +2,7 @@
 
 Most tests run the batch machinery with a small stand-in evaluator defined here
 (:func:`standin_plan`), so they test batch itself and not the chemistry of
-:func:`saltplan.plan.plan_salts`; the end-to-end tests at the bottom use the real planner
+:func:`saltplan.plan.planner.plan_salts`; the end-to-end tests at the bottom use the real planner
 and skip while it is not installed. Canonical SMILES are checked against RDKit itself
 (reference library) and fixture molecules are common laboratory chemicals.
 """
@@ -18,7 +18,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from saltplan.batch import COLUMNS, evaluate_many, iter_evaluate, run_batch, summarize_plan
+from saltplan.batch.run import COLUMNS, evaluate_many, iter_evaluate, run_batch, summarize_plan
 from saltplan.errors import InputFileError, ParameterError
 from saltplan.structure import read_structure
 
@@ -414,7 +414,7 @@ def test_xlsx_keeps_formula_like_text_as_text(tmp_path):
 
 
 def test_xlsx_row_cap_refuses_without_partial_file(tmp_path, monkeypatch):
-    import saltplan.batch_output as bo
+    import saltplan.batch.outputs as bo
 
     monkeypatch.setattr(bo, "XLSX_MAX_ROWS", 5)
     out = tmp_path / "big.xlsx"
@@ -462,7 +462,7 @@ def test_summary_counts_escaping_and_determinism(tmp_path):
 # --------------------------------------------------------------------------- CLI
 @pytest.fixture
 def standin(monkeypatch):
-    import saltplan.batch as batch_mod
+    import saltplan.batch.run as batch_mod
 
     monkeypatch.setattr(batch_mod, "_default_evaluator", lambda: standin_plan)
     monkeypatch.setattr(batch_mod, "_preflight_libraries", lambda libraries, evaluator: None)
@@ -511,7 +511,7 @@ def test_cli_help_states_exit_status(cli):
 
 # --------------------------------------------------------------------------- with plan_salts
 def _real_planner():
-    pytest.importorskip("saltplan.plan", reason="saltplan.plan not available yet")
+    pytest.importorskip("saltplan.plan.planner", reason="saltplan.plan.planner not available yet")
     ionization = pytest.importorskip("saltplan.ionization")
     if not hasattr(ionization, "ionizable_sites"):
         pytest.skip("saltplan.ionization.ionizable_sites not available yet")
@@ -535,7 +535,7 @@ def test_end_to_end_with_plan_salts(tmp_path):
 
 
 def test_xlsx_refused_early_from_the_row_estimate(tmp_path, monkeypatch):
-    import saltplan.batch_output as bo
+    import saltplan.batch.outputs as bo
 
     monkeypatch.setattr(bo, "XLSX_MAX_ROWS", 100)
     calls = []
@@ -562,7 +562,7 @@ def test_progress_bar_grows_past_the_estimate():
 
 
 def test_broken_user_library_fails_before_any_row(tmp_path):
-    pytest.importorskip("saltplan.counterions")
+    pytest.importorskip("saltplan.library.counterions")
     from saltplan.errors import SaltplanError
 
     out = tmp_path / "o.csv"
@@ -590,7 +590,7 @@ def test_output_may_not_replace_the_input(tmp_path):
 
 
 def test_json_writer_never_writes_nan(tmp_path):
-    from saltplan.batch_output import JsonWriter
+    from saltplan.batch.outputs import JsonWriter
 
     out = tmp_path / "o.json"
     w = JsonWriter(out, ("row", "most_basic_pka"))

@@ -112,7 +112,7 @@ def screened(tmp_path_factory):
     from click.testing import CliRunner
 
     from saltplan.cli import main
-    from saltplan.demo_results import make_demo_results
+    from saltplan.demo.results import make_demo_results
 
     base = tmp_path_factory.mktemp("screened")
     design_dir = base / "design"
@@ -361,7 +361,7 @@ def test_batch_bom_crlf_same_as_plain(cli, tmp_path):
 
 
 def test_batch_leaves_the_csv_field_limit_alone(tmp_path):
-    from saltplan.batch import run_batch
+    from saltplan.batch.run import run_batch
 
     csv.field_size_limit(131072)
     src = tmp_path / "in.csv"

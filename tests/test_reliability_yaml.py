@@ -90,7 +90,7 @@ def screened(tmp_path_factory):
     from click.testing import CliRunner
 
     from saltplan.cli import main
-    from saltplan.demo_results import make_demo_results
+    from saltplan.demo.results import make_demo_results
 
     base = tmp_path_factory.mktemp("screened")
     design_dir = base / "design"

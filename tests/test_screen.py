@@ -15,12 +15,12 @@ from dataclasses import dataclass
 import pytest
 
 from saltplan.errors import BudgetError, ParameterError, SaltplanError
-from saltplan.screen import (MODES, PLATE_WELLS, counterion_amounts, design_screen,
+from saltplan.screen.design import (MODES, PLATE_WELLS, counterion_amounts, design_screen,
                              equivalents_for, write_screen)
-from saltplan.screen_output import (RESULTS_COLUMNS, plate_csv, results_template_csv,
+from saltplan.screen.output import (RESULTS_COLUMNS, plate_csv, results_template_csv,
                                     worksheet_csv)
-from saltplan.solvent_selection import select_solvents
-from saltplan.solvents import load_solvents
+from saltplan.screen.solvent_choice import select_solvents
+from saltplan.library.solvents import load_solvents
 
 
 @dataclass(frozen=True)
@@ -438,7 +438,7 @@ def test_results_template_has_the_select_columns_and_one_row_per_well():
     assert tuple(rows[0]) == RESULTS_COLUMNS
     assert [r[0] for r in rows[1:]] == [w.well for w in d.wells]
     # the select step reads the template once an outcome is filled in
-    select_results = pytest.importorskip("saltplan.select_results")
+    select_results = pytest.importorskip("saltplan.select.results")
     rows[1][RESULTS_COLUMNS.index("outcome")] = "crystalline"
     filled = "".join(",".join(r) + "\n" for r in rows)
     parsed = select_results.parse_results(filled, d.to_dict())
@@ -457,7 +457,7 @@ def test_same_input_same_bytes(tmp_path):
 
 
 def test_no_partial_files_on_failure(tmp_path, monkeypatch):
-    import saltplan.screen_output as out
+    import saltplan.screen.output as out
 
     def boom(_design):
         raise RuntimeError("rendering failed")
@@ -502,7 +502,7 @@ def test_screen_cli_usage_errors_exit_2(cli):
 # --------------------------------------------------------------------------- real library
 @pytest.fixture(scope="module")
 def real_lib():
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     return load_counterions()
 
@@ -544,7 +544,7 @@ HX_SMILES = "CN1CCN(CC1)Cc1ccc(cc1)C(=O)Nc1ccccc1"
 
 @pytest.fixture(scope="module")
 def real_plan():
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     return plan_salts(HX_SMILES, name="HX-204 (invented)")
 

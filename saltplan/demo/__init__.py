@@ -73,7 +73,7 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
 
 
 def _run_demo(out: Path) -> dict[str, Any]:
-    from ..plan import plan_salts
+    from ..plan.planner import plan_salts
 
     written: list[str] = []
     summary: dict[str, Any] = {"programme": programme_name(), "compounds": []}
@@ -142,14 +142,14 @@ def _design(plan, c: DemoCompound):
     if plan.verdict["code"] != "salt_candidates":
         return None
     try:
-        from ..screen import design_screen
+        from ..screen.design import design_screen
     except ImportError:
         return None
     return design_screen(plan, api_budget_mg=c.api_budget_mg)
 
 
 def _write_screen(design, folder: Path) -> list[Path]:
-    from ..screen import write_screen
+    from ..screen.output import write_screen
 
     return list(write_screen(design, folder))
 
@@ -157,7 +157,7 @@ def _write_screen(design, folder: Path) -> list[Path]:
 def _batch(out: Path) -> list[str]:
     import pandas as pd
 
-    from ..batch import run_batch
+    from ..batch.run import run_batch
 
     rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
             for c in load_programme()]
@@ -168,9 +168,9 @@ def _batch(out: Path) -> list[str]:
 
 def _select(design, folder: Path) -> list[str]:
     try:
-        from ..demo_results import make_demo_results
-        from ..select import evaluate_results
-        from ..select_report import write_decision_record
+        from .results import make_demo_results
+        from ..select.evaluate import evaluate_results
+        from ..reports.decision import write_decision_record
     except ImportError:
         return []
     from .._io import write_text_atomic

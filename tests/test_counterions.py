@@ -400,7 +400,7 @@ BROKEN = {
     "unknown_key": ("propionate", "pKa", "unknown key 'pKa' (did you mean 'pka'?)"),
     "missing_key": ("propionate", "tier", "missing required key 'tier'"),
     "duplicate_id": ("propionate", "id", "duplicate id 'propionate'"),
-    "smiles": ("propionate", "smiles", "RDKit cannot parse SMILES 'CCC(=O': SMILES Parse Error"),
+    "smiles": ("propionate", "smiles", "RDKit cannot parse SMILES 'CCC(=O'"),
     "smiles_charge": ("propionate", "smiles", "net charge -1"),
     "smiles_components": ("propionate", "smiles", "has 2 components"),
     "pka_text": ("propionate", "pka", "pka must be a list of numbers between -12 and 16, got 'two'"),

@@ -104,8 +104,9 @@ def test_smiles_file_with_title(tmp_path):
 @pytest.mark.parametrize("bad, message", [
     ("", "empty structure input"),
     ("   ", "empty structure input"),
-    ("C1CC", "unparsable SMILES 'C1CC': RDKit says SMILES Parse Error: unclosed ring"),
-    ("c1cccc1", "unparsable SMILES 'c1cccc1': RDKit says Can't kekulize"),
+    # saltplan's own words; RDKit's reason follows "RDKit says" in wording of its release
+    ("C1CC", "unparsable SMILES 'C1CC': RDKit says "),
+    ("c1cccc1", "unparsable SMILES 'c1cccc1': RDKit says "),
     ("O", "no carbon atom"),
     ("Cl.[Na+]", "no carbon atom"),
     ("C[Pt](Cl)(N)N", "organometallic or metal complex (Pt"),

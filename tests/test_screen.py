@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import pytest
 
 from saltplan.errors import BudgetError, ParameterError, SaltplanError
-from saltplan.screen.design import (MODES, PLATE_WELLS, counterion_amounts, design_screen,
+from saltplan.screen import (MODES, PLATE_WELLS, counterion_amounts, design_screen,
                              equivalents_for, write_screen)
 from saltplan.screen.output import (RESULTS_COLUMNS, plate_csv, results_template_csv,
                                     worksheet_csv)

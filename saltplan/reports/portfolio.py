@@ -9,12 +9,7 @@ from __future__ import annotations
 
 import functools
 import io
-from typing import TYPE_CHECKING
-
 from typing import Any
-
-if TYPE_CHECKING:  # the type only; the summary is read through its attributes and to_dict()
-    from ..batch.summary import BatchSummary
 
 
 # --------------------------------------------------------------------------- rendering
@@ -59,8 +54,12 @@ def _template():
     return env.from_string(text)
 
 
-def render_summary(summary: BatchSummary) -> str:
-    """The summary page as HTML text."""
+def render_summary(summary: Any) -> str:
+    """The summary page as HTML text.
+
+    ``summary`` is a :class:`saltplan.batch.summary.BatchSummary`, read through its
+    attributes and ``to_dict()`` (reports do not import the batch step above them).
+    """
     from markupsafe import Markup
 
     from .._version import __version__

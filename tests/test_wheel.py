@@ -85,3 +85,20 @@ def test_wheel_smoke_commands(wheel_venv):
     out = _run([str(exe), "demo", "--out", str(demo_out)], cwd=tmp, env=env)
     assert out.returncode == 0, out.stderr[-3000:]
     assert any(demo_out.rglob("report.html")), "demo wrote no HTML report from the wheel"
+
+
+def test_wheel_lists_every_data_file_and_template_of_the_package(wheel_venv):
+    """Each non-Python file of saltplan/ (YAML tables, Jinja2 templates, READMEs) and each
+    counterion library file is inside the wheel, at the same place."""
+    import zipfile
+
+    _py, _env_dir, _env, tmp = wheel_venv
+    wheel = next(tmp.glob("saltplan-*.whl"))
+    inside = set(zipfile.ZipFile(wheel).namelist())
+    package = ROOT / "saltplan"
+    wanted = {p.relative_to(ROOT).as_posix() for p in package.rglob("*")
+              if p.is_file() and p.suffix not in (".py", ".pyc") and "__pycache__" not in p.parts}
+    wanted |= {f"saltplan/_counterions/{p.name}" for p in (ROOT / "counterions").glob("*.yaml")}
+    assert any(w.endswith("templates/decision.html.j2") for w in wanted)
+    assert any(w.endswith("templates/portfolio.html.j2") for w in wanted)
+    assert sorted(wanted - inside) == []

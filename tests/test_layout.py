@@ -299,3 +299,29 @@ def test_checker_passes_a_clean_synthetic_package(tmp_path):
     })
     g = import_graph(root)
     assert find_cycles(g) == [] and upward_imports(g) == [] and private_reaches(g) == []
+
+
+# ------------------------------------------------------------------ public API hints
+#: public functions whose hints are left to the branch rewriting them (ionization/ estimator)
+UNANNOTATED_FOR_NOW = {"ionizable_sites"}
+
+
+def test_public_api_functions_are_fully_annotated():
+    """Every function of ``saltplan.__all__`` annotates each parameter and its return (mypy
+    checks those hints: ``mypy`` with the [tool.mypy] files of pyproject.toml)."""
+    import inspect
+
+    import saltplan
+
+    missing = {}
+    for name in saltplan.__all__:
+        obj = getattr(saltplan, name)
+        if not inspect.isfunction(obj) or name in UNANNOTATED_FOR_NOW:
+            continue
+        sig = inspect.signature(obj)
+        gaps = [p for p, v in sig.parameters.items() if v.annotation is inspect.Parameter.empty]
+        if sig.return_annotation is inspect.Signature.empty:
+            gaps.append("return")
+        if gaps:
+            missing[name] = gaps
+    assert missing == {}

@@ -21,10 +21,15 @@ import math
 import threading
 from collections import deque
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterator, Sequence
+from typing import TYPE_CHECKING, Any, Callable, Iterator, Sequence
 
-from .sources import ColumnSpec, Record, column_spec, mark_duplicates, open_source
 from ..errors import ParameterError, SaltplanError
+from .sources import ColumnSpec, Record, column_spec, mark_duplicates, open_source
+
+if TYPE_CHECKING:
+    from pathlib import Path
+
+    import pandas as pd
 
 #: output columns, in order
 COLUMNS = (
@@ -271,11 +276,11 @@ def _preflight_libraries(libraries, evaluator):
         load_counterions(list(libraries))
 
 
-def iter_evaluate(dataframe_or_path, *, smiles_column: str = "smiles",
+def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column: str = "smiles",
                   id_column: str | None = None, name_column: str | None = None,
                   dose_column: str | None = None,
                   pka_columns: str | Sequence[str] | None = None, jobs: int = 1,
-                  engine: str = "local", scheduler=None,
+                  engine: str = "local", scheduler: str | Any | None = None,
                   chunk_size: int = DEFAULT_CHUNK_SIZE,
                   libraries: Sequence[str] | None = None, top: int = 3,
                   progress: Callable[[int, int | None], None] | None = None,
@@ -310,15 +315,15 @@ def iter_evaluate(dataframe_or_path, *, smiles_column: str = "smiles",
         yield rows
 
 
-def evaluate_many(dataframe_or_path, *, smiles_column: str = "smiles",
+def evaluate_many(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column: str = "smiles",
                   id_column: str | None = None, name_column: str | None = None,
                   dose_column: str | None = None,
                   pka_columns: str | Sequence[str] | None = None, jobs: int = 1,
-                  engine: str = "local", scheduler=None,
+                  engine: str = "local", scheduler: str | Any | None = None,
                   chunk_size: int = DEFAULT_CHUNK_SIZE,
                   libraries: Sequence[str] | None = None, top: int = 3,
                   progress: Callable[[int, int | None], None] | None = None,
-                  evaluator: Callable[..., Any] | None = None):
+                  evaluator: Callable[..., Any] | None = None) -> pd.DataFrame:
     """Plan salts for many candidates: one output row per input row, in input order.
 
     Parameters
@@ -369,7 +374,7 @@ def evaluate_many(dataframe_or_path, *, smiles_column: str = "smiles",
     return rows_to_frame(rows)
 
 
-def rows_to_frame(rows: list[dict[str, Any]]):
+def rows_to_frame(rows: list[dict[str, Any]]) -> pd.DataFrame:
     """A DataFrame of output rows with stable dtypes (nullable integers, float pKa)."""
     import pandas as pd
 
@@ -397,7 +402,8 @@ class BatchRun:
                 "by_verdict": dict(self.by_verdict), "outputs": list(self.outputs)}
 
 
-def run_batch(dataframe_or_path, out, *, summary=None, **options) -> BatchRun:
+def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
+              summary: str | Path | None = None, **options: Any) -> BatchRun:
     """Evaluate and stream the rows to ``out`` (.csv, .json, .jsonl or .xlsx).
 
     ``summary``: also write the HTML summary there. Options as for :func:`evaluate_many`.

@@ -223,7 +223,7 @@ def _builtin_files() -> list[Path]:
 def _user_files(paths) -> list[tuple[Path, str]]:
     if isinstance(paths, (str, Path)):
         paths = [paths]
-    out = []
+    out: list[tuple[Path, str]] = []
     for raw in paths:
         path = Path(raw)
         if path.is_dir():
@@ -245,7 +245,7 @@ def _stamp(path: Path) -> tuple[int, int]:
     return (st.st_mtime_ns, st.st_size)
 
 
-def load_counterions(paths=None) -> Library:
+def load_counterions(paths: str | Path | Sequence[str | Path] | None = None) -> Library:
     """Load the built-in counterion library, then merge user libraries in order.
 
     Parameters

@@ -16,9 +16,18 @@ import json
 import math
 import os
 from dataclasses import dataclass, replace
-from typing import Any, Mapping
+from collections.abc import Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Mapping, cast
 
 from ..errors import ParameterError
+
+if TYPE_CHECKING:
+    from rdkit import Chem
+
+    from ..library.counterions import Library
+    from ..structure import Parent
+    from .ranking import RankingConfig
 
 ROUTES = ("oral", "parenteral", "inhalation", "topical", "other")
 
@@ -163,8 +172,11 @@ def _library_paths(libraries) -> list[str]:
 
 
 # --------------------------------------------------------------------------- planning
-def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
-               route: str = "oral", measured=None, libraries=None, weights=None,
+def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = None,
+               dose_mg: float | None = None, route: str = "oral",
+               measured: Mapping[Any, float] | Sequence[float] | None = None,
+               libraries: Sequence[str | Path] | Library | None = None,
+               weights: str | Path | RankingConfig | None = None,
                min_delta_pka: float = 2.0, melting_point_c: float | None = None,
                intrinsic_solubility_mg_ml: float | None = None,
                salt_solubility_mg_ml: float | None = None,
@@ -232,7 +244,7 @@ def plan_salts(structure, name: str | None = None, dose_mg: float | None = None,
 
     parent = read_structure(structure, name=name, max_heavy_atoms=max_heavy_atoms)
     sites = tuple(ionizable_sites(parent, measured=measured))
-    library = libraries if hasattr(libraries, "hash") else (
+    library: Library = cast("Library", libraries) if hasattr(libraries, "hash") else (
         load_counterions(libraries) if libraries else _builtin_library())
     cfg = weights if isinstance(weights, RankingConfig) else load_ranking_config(weights)
     thresholds = cfg.thresholds
@@ -299,7 +311,7 @@ def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route)
         salt_kind = "base" if ion.role == "acid" else "acid"
         ph_max = solubility_ph_max(salt_kind, limiting.api_pka, sol.intrinsic.mg_ml,
                                    sol.salt_mg_ml)
-        fields = {"ph_max": ph_max, "ph_max_basis": basis,
+        fields: dict[str, Any] = {"ph_max": ph_max, "ph_max_basis": basis,
                   "slurry_ph": slurry_ph(salt_kind, limiting.api_pka, limiting.counterion_pka,
                                          conc)}
         cavs, triggered = candidate_caveats(

@@ -35,7 +35,8 @@ ICH Q3C and M7, the pharmacopoeias, local regulation and qualified staff.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Sequence
+from collections.abc import Mapping
+from typing import TYPE_CHECKING, Any, Sequence
 
 from ..errors import ParameterError
 from .amounts import (MIN_PIPETTE_UL, check_budget, counterion_amounts, cut_options,
@@ -43,6 +44,13 @@ from .amounts import (MIN_PIPETTE_UL, check_budget, counterion_amounts, cut_opti
                              positive_number, totals_of, well_entry)
 from .layout import PLATE_COLUMNS, PLATE_ROWS, PLATE_WELLS, Well, place_wells
 from .rules import FLAG_TEXT, api_has_primary_amine, risks_for
+
+if TYPE_CHECKING:
+    from pathlib import Path
+
+    from ..library.counterions import Library
+    from ..library.solvents import SolventLibrary
+    from ..plan import Plan
 
 __all__ = ["MODES", "SCALES", "Mode", "Scale", "Well", "ScreenDesign", "design_screen",
            "counterion_amounts", "equivalents_for", "mass_fraction",
@@ -97,7 +105,7 @@ SCALES = {
     "vial": Scale("vial", 50.0, 20.0, 8000.0,
                   "confirmatory vial scale, 20-100 mg API per vial (common practice); 8 mL vials"),
 }
-DEFAULTS = {"top": 4, "n_solvents": 4, "modes": ("slurry", "evaporation"),
+DEFAULTS: dict[str, Any] = {"top": 4, "n_solvents": 4, "modes": ("slurry", "evaporation"),
             "stock_molarity": 0.5, "excess": 0.05, "antisolvent_ratio": 2.0,
             "stock_overage": 0.2}
 #: a cooling end point must lie this far above the solvent's melting point [°C]
@@ -168,7 +176,8 @@ def _setting(value, default, basis: str) -> dict:
 
 
 # --------------------------------------------------------------------------- design
-def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None = None,
+def design_screen(plan: Plan | Mapping[str, Any], api_budget_mg: float, *, library: Library | None = None,
+                  top: int | None = None,
                   counterions: Sequence[str] | None = None,
                   solvents: Sequence[str] | None = None, n_solvents: int | None = None,
                   modes: Sequence[str] | None = None, scale: str = "plate",
@@ -179,7 +188,7 @@ def design_screen(plan, api_budget_mg: float, *, library=None, top: int | None =
                   liquid_dosing: str = "neat", stock_solvent: str | None = None,
                   counterion_budget_mg: dict[str, float] | None = None,
                   well_capacity_ul: float | None = None, layout: str = "auto",
-                  solvent_library=None) -> ScreenDesign:
+                  solvent_library: SolventLibrary | str | Path | None = None) -> ScreenDesign:
     """Design a salt screen from a plan.
 
     Parameters

@@ -195,7 +195,9 @@ def design_hash(design: Mapping) -> str:
                                   separators=(",", ":")))
 
 
-def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None = None) -> Selection:
+def evaluate_results(design: Any, results: Results | str | Path,
+                     thresholds: str | Path | Mapping[str, Any] | None = None, *,
+                     dose_mg: float | None = None) -> Selection:
     """Tiered evaluation of screen results against their design.
 
     Parameters
@@ -220,6 +222,7 @@ def evaluate_results(design, results, thresholds=None, *, dose_mg: float | None 
         results = read_results(results, d)
     th = load_thresholds(thresholds)
     plan = d.get("plan") or {}
+    dose: float | None
     if dose_mg is not None:
         dose, dose_source = float(dose_mg), "user, given with the command"
         if not math.isfinite(dose) or dose <= 0:
@@ -289,7 +292,10 @@ def _groups(observations, candidates, th: Thresholds, dose, dose_src, order) -> 
 
 
 def _ratio(text: str) -> float:
-    n, m = parse_ratio(text)
+    ratio = parse_ratio(text)
+    if ratio is None:  # reading the results already refused such a value
+        raise ValueError(f"not an n:m ratio: {text!r}")
+    n, m = ratio
     return m / n  # counterion per API
 
 
@@ -413,6 +419,7 @@ def _tier2(obs, th: Thresholds, dose, dose_src) -> tuple[list[Evidence], str | N
     if gain or deliq:
         high = max(gain) if gain else None
         hyg = hygroscopicity_class(high[0] if high else None, bool(deliq))
+        assert hyg is not None  # a weight gain or deliquescence was reported
         ok = HYGROSCOPICITY_CLASSES.index(hyg) <= HYGROSCOPICITY_CLASSES.index(t.value)
         detail = (f"weight gain {high[0]:g} % at 80 % RH (highest; {_fmt(gain, '%')})" if high else "")
         if deliq:

@@ -15,12 +15,16 @@ from __future__ import annotations
 import functools
 from collections import Counter
 from dataclasses import dataclass, field
-from typing import Any
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
 
 from ._rdkit import _pattern, _rdkit_reason, mol_weight, rdkit_messages  # noqa: F401 (re-exported)
 from ..errors import StructureError
 from .reading import (DEFAULT_MAX_HEAVY_ATOMS, MAX_COMPONENTS, _parse,  # noqa: F401
                               check_smiles_text, iter_sdf)
+if TYPE_CHECKING:
+    from rdkit import Chem
+
 #: a second organic component at least this fraction of the largest one's heavy-atom
 #: count is "of similar size": we cannot tell which is the API and ask the user.
 SIMILAR_SIZE_FRACTION = 0.5
@@ -333,7 +337,7 @@ def standardize(mol, *, source: str = "", name: str | None = None,
     )
 
 
-def read_structure(source, *, name: str | None = None,
+def read_structure(source: str | Path | Chem.Mol | Parent, *, name: str | None = None,
                    max_heavy_atoms: int = DEFAULT_MAX_HEAVY_ATOMS) -> Parent:
     """Read a structure and standardize it to the parent (free form).
 

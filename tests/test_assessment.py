@@ -11,10 +11,10 @@ from types import SimpleNamespace as NS
 
 import pytest
 
+from saltplan.errors import ParameterError
 from saltplan.plan import assessment as A
 from saltplan.plan import ranking as R
 from saltplan.plan import solubility as S
-from saltplan.errors import ParameterError
 
 # IUPAC standard atomic weights, abridged/conventional values (IUPAC CIAAW 2021)
 IUPAC = {"C": 12.011, "H": 1.008, "N": 14.007, "O": 15.999, "S": 32.06, "Cl": 35.45,
@@ -242,7 +242,7 @@ def _scored(cands, ions, dose=None):
 
 def test_breakdown_sums_to_score_and_keys_are_stable():
     cands = A.assess(DIPHENHYDRAMINE, [site(1, "base", 9.0)], [HCL, MSA])
-    for c, score, br in _scored(cands, {"hydrochloride": HCL, "mesylate": MSA}):
+    for _c, score, br in _scored(cands, {"hydrochloride": HCL, "mesylate": MSA}):
         assert tuple(br) == R.BREAKDOWN_KEYS
         assert sum(br.values()) == pytest.approx(score)
 

@@ -115,7 +115,7 @@ def test_valid_csv_one_row_per_input_in_order():
     assert list(df["id"]) == list(src["id"])
     assert df["error"].isna().all()
     # canonical parent SMILES = RDKit's canonical SMILES of the free form (reference library)
-    for given, got in zip(src["smiles"], df["smiles"]):
+    for given, got in zip(src["smiles"], df["smiles"], strict=True):
         largest = max(given.split("."), key=len)
         assert got == Chem.MolToSmiles(Chem.MolFromSmiles(largest))
     tea = df.iloc[0]
@@ -133,7 +133,7 @@ def test_valid_csv_one_row_per_input_in_order():
 def test_bad_rows_carry_errors_and_the_run_goes_on():
     df = evaluate_many(FIX / "batch_bad_rows.csv", evaluator=standin_plan)
     assert len(df) == 8 and list(df["row"]) == list(range(1, 9))
-    err = dict(zip(df["id"], df["error"]))
+    err = dict(zip(df["id"], df["error"], strict=True))
     assert err["SP-0101"] is None and err["SP-0108"] is None
     assert "unparsable SMILES" in err["SP-0102"]
     assert err["SP-0103"] == "empty SMILES"
@@ -518,7 +518,7 @@ def test_end_to_end_with_plan_salts(tmp_path):
     _real_planner()
     df = evaluate_many(FIX / "batch_valid.csv")
     assert df["row"].tolist() == list(range(1, 7))
-    by_name = dict(zip(df["name"], df.to_dict("records")))
+    by_name = dict(zip(df["name"], df.to_dict("records"), strict=True))
     # triethylamine pKa(BH+) 10.75 (CRC Handbook, dissociation constants of organic bases)
     tea = by_name["triethylamine"]
     assert tea["error"] is None and abs(tea["most_basic_pka"] - 10.75) < 1.0

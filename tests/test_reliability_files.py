@@ -9,7 +9,6 @@ import csv
 import json
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults
@@ -147,7 +146,7 @@ def _results_variants(good: str) -> dict:
         "binary": (bytes(range(256)) * 8, ("utf-8",)),
         "latin1": ((header + "\n" + first + "\n").encode("utf-8") + b"caf\xe9\n", ("utf-8",)),
         "header_only": ((header + "\n").encode(), ("no well has an outcome",)),
-        "unknown_column": (("well,outcome,colour\nA1,crystalline,red\n").encode(), ("colour",)),
+        "unknown_column": ((b"well,outcome,colour\nA1,crystalline,red\n"), ("colour",)),
         "no_outcome_column": (b"well,form_label\nA1,A\n", ("outcome",)),
         "huge_field_2mb": (with_notes("x" * 2_000_000).encode(), ("field",)),
         "ragged_row": ((header + "\n" + first + ",extra,extra\n").encode(), ()),

@@ -352,9 +352,9 @@ def test_chart_labels_with_markup_are_escaped():
 
     names = [n for n in dir(charts) if not n.startswith("_")]
     assert names  # module present
-    from saltplan.plan.planner import plan_salts
-
     import tempfile
+
+    from saltplan.plan.planner import plan_salts
 
     with tempfile.TemporaryDirectory() as tmp:
         lib = _library(Path(tmp), HOSTILE["script"], "liability")

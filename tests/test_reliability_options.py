@@ -3,7 +3,6 @@ line naming the option or field) or 2 (usage error from click), leaving no outpu
 from __future__ import annotations
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults

@@ -9,7 +9,6 @@ from __future__ import annotations
 import json
 
 import pytest
-
 from hostile import files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults

@@ -26,8 +26,8 @@ import sys
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
 from molgen import drug_like_smiles, hostile_text, random_text, salted_smiles, smiles_like
+
 from saltplan.errors import SaltplanError
 
 settings.register_profile("reliability", derandomize=True, deadline=None, database=None,

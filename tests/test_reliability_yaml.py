@@ -10,10 +10,8 @@ interpreter. Every file here is generated in tmp_path; all contents are invented
 from __future__ import annotations
 
 import time
-from pathlib import Path
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults

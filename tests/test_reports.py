@@ -8,13 +8,21 @@ import xml.etree.ElementTree as ET
 from html.parser import HTMLParser
 
 import pytest
+import report_fixtures as fx
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import report_fixtures as fx
-from saltplan.reports import (render_plan_html, render_plan_json, render_plan_markdown,
-                              render_plan_fragment, repr_html, write_plan_report)
-from saltplan.reports import charts, drawing, platemap
+from saltplan.reports import (
+    charts,
+    drawing,
+    platemap,
+    render_plan_fragment,
+    render_plan_html,
+    render_plan_json,
+    render_plan_markdown,
+    repr_html,
+    write_plan_report,
+)
 from saltplan.reports.context import MissingKey
 from saltplan.reports.markdown import md_escape
 

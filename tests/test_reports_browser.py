@@ -15,7 +15,6 @@ import subprocess
 from pathlib import Path
 
 import pytest
-
 import report_fixtures as fx
 
 pytestmark = [pytest.mark.slow, pytest.mark.browser]

@@ -13,14 +13,14 @@ import re
 from dataclasses import dataclass
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from saltplan.errors import BudgetError, ParameterError, SaltplanError
-from saltplan.screen import (MODES, PLATE_WELLS, counterion_amounts, design_screen,
-                             equivalents_for, write_screen)
-from saltplan.screen.output import (RESULTS_COLUMNS, plate_csv, results_template_csv,
-                                    worksheet_csv)
-from saltplan.screen.solvent_choice import select_solvents
 from saltplan.library.solvents import load_solvents
+from saltplan.screen import MODES, PLATE_WELLS, counterion_amounts, design_screen, equivalents_for, write_screen
+from saltplan.screen.output import RESULTS_COLUMNS, plate_csv, results_template_csv, worksheet_csv
+from saltplan.screen.solvent_choice import select_solvents
 
 
 @dataclass(frozen=True)
@@ -161,9 +161,6 @@ def test_antisolvent_volume_and_partner():
     assert w.antisolvent == "heptane"           # library pairing (common practice)
     assert w.antisolvent_ul == pytest.approx(2 * 200.0)   # 25 mg/mL -> 200 µL, ratio 2
 
-
-from hypothesis import given, settings
-from hypothesis import strategies as st
 
 
 @settings(max_examples=60, deadline=None)
@@ -451,7 +448,7 @@ def test_same_input_same_bytes(tmp_path):
     b = write_screen(design(), tmp_path / "b")
     assert [p.name for p in a] == ["worksheet.csv", "plate.csv", "design.json",
                                    "results-template.csv"]
-    for pa, pb in zip(a, b):
+    for pa, pb in zip(a, b, strict=True):
         assert pa.read_bytes() == pb.read_bytes()
     json.loads((tmp_path / "a" / "design.json").read_text(encoding="utf-8"))
 

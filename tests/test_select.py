@@ -17,8 +17,8 @@ import random
 import pytest
 
 from saltplan.errors import ParameterError, ResultsError
-from saltplan.select.evaluate import evaluate_results, load_design
 from saltplan.select.criteria import hygroscopicity_class, load_thresholds, required_solubility_mg_ml
+from saltplan.select.evaluate import evaluate_results, load_design
 from saltplan.select.results import parse_results, read_results
 
 HEADER = ("well,counterion,stoichiometry,solvent,mode,outcome,form_label,melting_onset_c,"
@@ -505,9 +505,9 @@ def test_html_is_self_contained_and_escaped(design):
 
 
 def test_markdown_neutralizes_user_text(design):
-    from saltplan.reports.decision import md_escape, render_decision_markdown
-
     import re
+
+    from saltplan.reports.decision import md_escape, render_decision_markdown
 
     md = render_decision_markdown(_nasty_selection(design))
     assert not re.search(r"(?<!\\)\]\(", md)  # no unescaped "](": no link
@@ -726,7 +726,9 @@ def test_any_valid_results_evaluate_traceably():
     design = fixture_design()
     samples = [w["well"] for w in design["wells"] if w["kind"] == "sample"]
     controls = [w["well"] for w in design["wells"] if w["kind"] == "control"]
-    num = lambda lo, hi: st.one_of(st.none(), st.floats(lo, hi, allow_nan=False).map(lambda v: round(v, 2)))
+    def num(lo, hi):
+        return st.one_of(st.none(), st.floats(lo, hi, allow_nan=False).map(lambda v: round(v, 2)))
+
     row = st.fixed_dictionaries({
         "outcome": st.sampled_from(["crystalline", "crystalline", "amorphous", "oil", "gel",
                                     "clear_solution"]),

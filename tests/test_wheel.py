@@ -62,8 +62,8 @@ def test_wheel_holds_the_package_data(wheel_venv):
     py, env_dir, env, tmp = wheel_venv
     code = (
         "import sys, json, saltplan, saltplan._data as d;"
-        "sys.path[:] = [p for p in sys.path if not p.startswith(%r)];"
-        "print(json.dumps({'pkg': saltplan.__file__, 'ions': str(d.counterion_dir())}))" % str(ROOT)
+        f"sys.path[:] = [p for p in sys.path if not p.startswith({str(ROOT)!r})];"
+        "print(json.dumps({'pkg': saltplan.__file__, 'ions': str(d.counterion_dir())}))"
     )
     out = _run([str(py), "-c", code], cwd=tmp, env=env)
     assert out.returncode == 0, out.stderr[-2000:]

@@ -27,8 +27,9 @@ import json
 import math
 import os
 import tempfile
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Any, Sequence
+from typing import Any
 
 from ..errors import ParameterError
 

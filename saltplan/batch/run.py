@@ -20,8 +20,9 @@ from __future__ import annotations
 import math
 import threading
 from collections import deque
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, Callable, Iterator, Sequence
+from typing import TYPE_CHECKING, Any
 
 from ..errors import ParameterError, SaltplanError
 from .sources import ColumnSpec, Record, column_spec, mark_duplicates, open_source
@@ -410,11 +411,11 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     Files are written to temporary names and renamed only when the run completes, so a
     failed run leaves no partial output.
     """
-    from .outputs import open_table_writer
-    from ..reports.portfolio import render_summary
-    from .summary import SummaryBuilder
-
     from pathlib import Path
+
+    from ..reports.portfolio import render_summary
+    from .outputs import open_table_writer
+    from .summary import SummaryBuilder
 
     is_frame = hasattr(dataframe_or_path, "columns")
     label = "DataFrame" if is_frame else Path(dataframe_or_path).name

@@ -26,9 +26,10 @@ import codecs
 import contextlib
 import csv
 import sys
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any, Iterator, Sequence
+from typing import Any
 
 from ..errors import InputFileError
 
@@ -307,12 +308,12 @@ class SdfSource(Source):
             keys = list(props)
             def prop(explicit, default, field):
                 key = explicit or default
-                idx = _find(keys, key)
+                idx = _find(keys, key)  # noqa: B023 - prop() runs within this iteration only
                 if idx is None:
-                    if explicit and error is None:
+                    if explicit and error is None:  # noqa: B023 - as above
                         return None, f"no SDF data field '{explicit}' ({field})"
                     return "", None
-                return _cell(props[keys[idx]]), None
+                return _cell(props[keys[idx]]), None  # noqa: B023 - as above
 
             problems = []
             ident, p = prop(spec.id, DEFAULT_ID, "id")

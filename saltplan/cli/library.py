@@ -66,7 +66,7 @@ def show(counterion_id, libraries, as_json):
                     f"{c.ion_mw:.2f} g/mol, charge {c.charge:+d})"),
         ("role", f"{c.role} (salts of {'basic' if c.role == 'acid' else 'acidic'} drugs)"),
     ]
-    for value, source in zip(c.pka, c.pka_sources):
+    for value, source in zip(c.pka, c.pka_sources, strict=True):
         lines.append(("pKa", f"{value:.2f}  [literature: {source}]"))
     note = f"  ({c.pka_note})" if c.pka_note else ""
     lines.append(("pKa for ΔpKa", f"{c.pka_for_salt:.2f}{note}"))

@@ -131,8 +131,9 @@ def _write_plan(plan, folder: Path, screen=None) -> list[Path]:
     try:
         from ..reports import write_plan_report
     except ImportError:  # reports not available: JSON only
-        from .._io import write_text_atomic
         import json
+
+        from .._io import write_text_atomic
 
         return [write_text_atomic(folder / "plan.json", json.dumps(plan.to_dict(), indent=2) + "\n")]
     return list(write_plan_report(plan, folder, screen=screen))
@@ -168,9 +169,9 @@ def _batch(out: Path) -> list[str]:
 
 def _select(design, folder: Path) -> list[str]:
     try:
-        from .results import make_demo_results
-        from ..select.evaluate import evaluate_results
         from ..reports.decision import write_decision_record
+        from ..select.evaluate import evaluate_results
+        from .results import make_demo_results
     except ImportError:
         return []
     from .._io import write_text_atomic

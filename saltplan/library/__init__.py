@@ -5,8 +5,7 @@ Imports ``structure`` (molecular weights, RDKit messages) and the private helper
 """
 from __future__ import annotations
 
-from .counterions import (FLAGS, Counterion, Library, LibraryCheck, build_library,
-                          check_counterions, load_counterions)
+from .counterions import FLAGS, Counterion, Library, LibraryCheck, build_library, check_counterions, load_counterions
 from .solvents import Solvent, SolventLibrary, load_solvents
 
 __all__ = ["FLAGS", "Counterion", "Library", "LibraryCheck", "build_library",

@@ -156,7 +156,7 @@ def validate_entry(raw, *, file: str, index: int) -> tuple[dict[str, Any], dict[
         fail("pka", f"pka must be a list of numbers between {PKA_MIN:g} and {PKA_MAX:g}, "
                     f"got {bad!r}")
     pka = tuple(float(v) for v in pka_raw)
-    if any(b <= a for a, b in zip(pka, pka[1:])):
+    if any(b <= a for a, b in zip(pka, pka[1:], strict=False)):
         fail("pka", f"pka values must be in ascending order, got {list(pka)}")
     pka_sources = texts("pka_sources")
     if len(pka_sources) != len(pka):
@@ -288,9 +288,7 @@ def _derive(smiles: str, role: str, n_protons: int, pka: tuple, fail) -> dict[st
     from rdkit import Chem
     from rdkit.Chem import rdMolDescriptors
 
-    from ..structure import mol_weight
-
-    from ..structure import rdkit_messages
+    from ..structure import mol_weight, rdkit_messages
 
     with rdkit_messages() as messages:
         mol = Chem.MolFromSmiles(smiles)

@@ -19,9 +19,9 @@ from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any
 
-from ._counterion_schema import FLAGS, validate_entry, validate_file
 from .._data import counterion_dir, load_yaml_path, sha256_text
 from ..errors import CounterionLibraryError
+from ._counterion_schema import FLAGS, validate_entry, validate_file
 
 __all__ = ["FLAGS", "Counterion", "Library", "LibraryCheck", "load_counterions",
            "check_counterions"]

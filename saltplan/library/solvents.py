@@ -27,9 +27,10 @@ from __future__ import annotations
 import functools
 import math
 import re
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Iterator, Sequence
+from typing import Any
 
 from .._data import load_yaml_path, load_yaml_text, package_file, sha256_text
 from ..errors import SolventLibraryError
@@ -431,7 +432,7 @@ def _entry(raw, label, refs, field_sources, fail) -> Solvent:
         pool_note=pool_note, notes=text("notes", required=False), sources=tuple(cited))
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _pattern(key: str):
     from rdkit import Chem
 

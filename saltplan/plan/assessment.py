@@ -16,14 +16,27 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
-from typing import Any, Iterable, Sequence
+from typing import Any
 
 from ..errors import ParameterError
 from .stoichiometry import (  # noqa: F401 - re-exported: part of this module's public API
-    MASS_SOURCE, Composition, Option, compose, counterion_pkas, hill_formula, is_cation_base,
-    option_clears, parse_stoichiometry, pka_source, required_delta_pka, salt_pka,
-    salt_pka_index, stoichiometry_options)
+    MASS_SOURCE,
+    Composition,
+    Option,
+    compose,
+    counterion_pkas,
+    hill_formula,
+    is_cation_base,
+    option_clears,
+    parse_stoichiometry,
+    pka_source,
+    required_delta_pka,
+    salt_pka,
+    salt_pka_index,
+    stoichiometry_options,
+)
 
 CATEGORIES = ("salt_expected", "likely", "uncertain", "unlikely")
 THRESHOLD_SOURCE = ("rule of thumb ΔpKa ≥ 2–3 (common practice; Stahl & Wermuth 2011); "
@@ -290,7 +303,7 @@ def assess(parent, sites: Sequence, library: Iterable, *, min_delta_pka: float =
                                          else counterion_pkas(ion)[i]),
                          counterion_pka_index=i, counterion_pka_source=pka_source(ion, i),
                          delta_pka=d, note=opt.notes[k] if opt.notes else None)
-                for k, ((site, i), d) in enumerate(zip(opt.pairs, opt.delta_pkas)))
+                for k, ((site, i), d) in enumerate(zip(opt.pairs, opt.delta_pkas, strict=True)))
             feasible = option_clears(opt, min_delta_pka, zwitterion_allowance)
             need = min(required_delta_pka(n, min_delta_pka, zwitterion_allowance)
                        for n in (opt.notes or (None,)))

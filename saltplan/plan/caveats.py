@@ -15,8 +15,9 @@ Salts*, 2nd ed., Wiley-VCH 2011; ICH M7(R2) (mutagenic impurities); A. T. M. Ser
 from __future__ import annotations
 
 import functools
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any
 
 from .assessment import Candidate, Caveat, is_cation_base, parse_stoichiometry
 
@@ -37,7 +38,7 @@ _SMARTS = {
 }
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _pattern(name: str):
     from rdkit import Chem
 

@@ -15,10 +15,10 @@ import functools
 import json
 import math
 import os
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
-from collections.abc import Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Mapping, cast
+from typing import TYPE_CHECKING, Any, cast
 
 from ..errors import ParameterError
 
@@ -221,13 +221,13 @@ def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = Non
     StructureError, ParameterError, CounterionLibraryError
     """
     from .._provenance import input_hash, provenance
+    from ..ionization import ionizable_sites
+    from ..library.counterions import load_counterions
+    from ..structure import read_structure
     from .assessment import assess
     from .caveats import api_caveats, api_features
-    from ..library.counterions import load_counterions
-    from ..ionization import ionizable_sites
     from .ranking import RankingConfig, load_ranking_config
     from .solubility import sketch
-    from ..structure import read_structure
 
     dose_mg = _number(dose_mg, "dose (mg/day)", positive=True)
     if dose_mg is not None and dose_mg > 1e6:

@@ -28,12 +28,13 @@ import copy
 import functools
 import json
 import math
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Any, Iterable, Mapping
+from typing import Any
 
-from .assessment import Candidate, Thresholds
 from ..errors import ParameterError
+from .assessment import Candidate, Thresholds
 
 BREAKDOWN_KEYS = ("delta_pka_margin", "tier", "precedence", "mass", "liabilities",
                   "hygroscopicity", "disproportionation", "slurry_disproportionation",
@@ -145,7 +146,7 @@ def _default_config() -> RankingConfig:
 
 def _check(cfg: RankingConfig, origin: str) -> None:
     try:
-        cfg.thresholds
+        _ = cfg.thresholds  # building the thresholds validates them
     except ParameterError as exc:
         raise ParameterError(exc.message, file=origin, field="thresholds") from None
     for key, value in cfg.data["weights"].items():

@@ -14,11 +14,12 @@ from __future__ import annotations
 import functools
 import re
 from collections import Counter
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any, Sequence
+from typing import Any
 
-from ..structure import mol_weight  # noqa: F401  (re-exported)
 from ..errors import ParameterError
+from ..structure import mol_weight  # noqa: F401  (re-exported)
 
 MASS_SOURCE = ("RDKit average atomic weights (IUPAC) of the salt species (API or API anion, "
                "counterion or cation), summed per formula unit")
@@ -212,12 +213,12 @@ def required_delta_pka(note: str | None, min_delta_pka: float,
     return min_delta_pka - (zwitterion_allowance if is_zwitterion_transfer(note) else 0.0)
 
 
-def option_clears(option: "Option", min_delta_pka: float,
+def option_clears(option: Option, min_delta_pka: float,
                   zwitterion_allowance: float = 0.0) -> bool:
     """Every proton transfer of ``option`` reaches its required ΔpKa."""
     notes = option.notes or (None,) * len(option.delta_pkas)
     return all(d >= required_delta_pka(n, min_delta_pka, zwitterion_allowance)
-               for d, n in zip(option.delta_pkas, notes))
+               for d, n in zip(option.delta_pkas, notes, strict=True))
 
 
 def stoichiometry_options(sites: Sequence, ion, min_delta_pka: float = 2.0,

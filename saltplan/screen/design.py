@@ -34,14 +34,24 @@ ICH Q3C and M7, the pharmacopoeias, local regulation and qualified staff.
 """
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from collections.abc import Mapping
-from typing import TYPE_CHECKING, Any, Sequence
+from typing import TYPE_CHECKING, Any
 
 from ..errors import ParameterError
-from .amounts import (MIN_PIPETTE_UL, check_budget, counterion_amounts, cut_options,
-                             equivalents_for, get_counterion, mass_fraction, parse_stoichiometry,
-                             positive_number, totals_of, well_entry)
+from .amounts import (
+    MIN_PIPETTE_UL,
+    check_budget,
+    counterion_amounts,
+    cut_options,
+    equivalents_for,
+    get_counterion,
+    mass_fraction,
+    parse_stoichiometry,
+    positive_number,
+    totals_of,
+    well_entry,
+)
 from .layout import PLATE_COLUMNS, PLATE_ROWS, PLATE_WELLS, Well, place_wells
 from .rules import FLAG_TEXT, api_has_primary_amine, risks_for
 
@@ -254,8 +264,8 @@ def design_screen(plan: Plan | Mapping[str, Any], api_budget_mg: float, *, libra
     ParameterError
         Bad options, more than 96 wells at plate scale, a well over its capacity.
     """
-    from .solvent_choice import select_solvents
     from ..library.solvents import SolventLibrary, load_solvents
+    from .solvent_choice import select_solvents
 
     pd = _plan_dict(plan)
     if scale not in SCALES:

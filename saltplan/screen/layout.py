@@ -55,7 +55,7 @@ def place_wells(entries, scale, layout, cands, chosen, mode_ids, controls):
         ids = [f"V{i + 1:0{width}d}" for i in range(len(entries))]
         info = {"format": "vial list", "scale": "vial", "order": "design order: candidate "
                 "rank, then solvent selection order, then mode; controls last"}
-        return [_well(i, e) for i, e in zip(ids, entries)], info
+        return [_well(i, e) for i, e in zip(ids, entries, strict=True)], info
     row_keys = [c["key"] for c in cands if any(e["cand"] is c for e in entries)]
     if controls and any(e["kind"] == "control" for e in entries):
         row_keys.append("controls")
@@ -82,7 +82,7 @@ def place_wells(entries, scale, layout, cands, chosen, mode_ids, controls):
             "plate": "SBS 96-well (8 rows A-H × 12 columns)",
             "order": "A1, A2, ..., A12, B1, ... in design order: candidate rank, then solvent "
                      "selection order, then mode; controls last"}
-    return [_well(i, e) for i, e in zip(ids, entries)], info
+    return [_well(i, e) for i, e in zip(ids, entries, strict=True)], info
 
 
 def _well(well_id: str, e: dict) -> Well:

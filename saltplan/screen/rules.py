@@ -124,7 +124,7 @@ def _has_primary_amine(smiles: str) -> bool:
     return any(mol.HasSubstructMatch(_pattern(p)) for p in _PRIMARY_AMINE)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _pattern(smarts: str):
     from rdkit import Chem
 

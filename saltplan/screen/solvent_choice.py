@@ -7,8 +7,9 @@ Q3C class 1 solvent and preferring class 3 (a distance penalty for class 2).
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any, Sequence
+from typing import Any
 
 from ..errors import ParameterError
 from ..library.solvents import Solvent, SolventLibrary
@@ -131,12 +132,12 @@ def select_solvents(library: SolventLibrary, n: int, *, requested: Sequence[str]
 
 def _standardized(space: Sequence[Solvent]) -> dict[str, tuple[float, ...]]:
     raw = {s.id: solvent_features(s) for s in space}
-    columns = list(zip(*raw.values()))
+    columns = list(zip(*raw.values(), strict=True))
     means = [sum(c) / len(c) for c in columns]
     sds = [math.sqrt(sum((x - m) ** 2 for x in c) / len(c)) or 1.0
-           for c, m in zip(columns, means)]
-    return {sid: tuple((x - m) / sd for x, m, sd in zip(v, means, sds)) for sid, v in raw.items()}
+           for c, m in zip(columns, means, strict=True)]
+    return {sid: tuple((x - m) / sd for x, m, sd in zip(v, means, sds, strict=True)) for sid, v in raw.items()}
 
 
 def _dist(a: Sequence[float], b: Sequence[float]) -> float:
-    return math.sqrt(sum((x - y) ** 2 for x, y in zip(a, b)))
+    return math.sqrt(sum((x - y) ** 2 for x, y in zip(a, b, strict=True)))

@@ -6,8 +6,7 @@ only lazily, for ``Selection._repr_html_``.
 """
 from __future__ import annotations
 
-from .evaluate import (RANKING_ORDER, Evidence, FormGroup, Selection, evaluate_results,
-                       load_design, read_results)
+from .evaluate import RANKING_ORDER, Evidence, FormGroup, Selection, evaluate_results, load_design, read_results
 
 __all__ = ["Evidence", "FormGroup", "Selection", "evaluate_results", "read_results",
            "load_design", "RANKING_ORDER"]

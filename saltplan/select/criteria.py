@@ -6,9 +6,10 @@ Loaded lazily; nothing here runs at import time.
 from __future__ import annotations
 
 import functools
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 from .._data import load_yaml_path, package_yaml, sha256_text
 from ..errors import ParameterError

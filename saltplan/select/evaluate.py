@@ -22,19 +22,25 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, fields
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 from .._data import sha256_text
-from ..errors import ParameterError
 from .._provenance import provenance
-from .criteria import (HYGROSCOPICITY_CLASSES, HYGROSCOPICITY_TEXT, Thresholds,
-                              hygroscopicity_class, load_thresholds, required_solubility_mg_ml)
+from ..errors import ParameterError
 from .context import cautions, next_steps, open_questions, plan_summary, screen_summary
+from .criteria import (
+    HYGROSCOPICITY_CLASSES,
+    HYGROSCOPICITY_TEXT,
+    Thresholds,
+    hygroscopicity_class,
+    load_thresholds,
+    required_solubility_mg_ml,
+)
 from .ranking import RANKING_ORDER, assign_roles, rank_key
-from .results import (OUTCOMES, Observation, Results, design_dict, parse_ratio,
-                             read_results)
+from .results import OUTCOMES, Observation, Results, design_dict, parse_ratio, read_results
 
 __all__ = ["Evidence", "FormGroup", "Selection", "evaluate_results", "read_results",
            "load_design", "RANKING_ORDER"]
@@ -247,7 +253,8 @@ def evaluate_results(design: Any, results: Results | str | Path,
     created = provenance(
         library_hash=(plan.get("provenance") or {}).get("library_hash"),
         plan_input_hash=(plan.get("provenance") or {}).get("input_hash"),
-        design_hash=design_hash(d), results_file=Path(results.file).name if results.file else results.file, results_hash=results.sha256,
+        design_hash=design_hash(d), results_file=Path(results.file).name if results.file else results.file,
+        results_hash=results.sha256,
         thresholds_hash=th.hash)
     return Selection(
         outcome=outcome, summary=summary, shortlist=tuple(shortlist), not_shortlisted=tuple(others),

@@ -43,9 +43,10 @@ import csv
 import hashlib
 import math
 import re
+from collections.abc import Iterable
 from dataclasses import dataclass, fields
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any
 
 from ..errors import ResultsError
 
@@ -421,7 +422,7 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
             if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
                 raise ResultsError(f"{len(cells)} cells but the header has {len(header)} columns",
                                    file=origin, row=row)
-            record = dict(zip(header, (c for c in cells)))
+            record = dict(zip(header, (c for c in cells), strict=False))
             obs = _row(record, wells, seen, row, origin, delimiter != ",")
             if obs is not None:
                 found[obs.well] = obs

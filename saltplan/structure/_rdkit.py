@@ -55,7 +55,7 @@ def _rdkit_reason(messages: list[str]) -> str:
     return " ".join(text.split())
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _pattern(smarts: str):
     """A compiled SMARTS query (cached): atom tests in C++ instead of Python loops."""
     from rdkit import Chem

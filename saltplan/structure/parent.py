@@ -18,10 +18,10 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ._rdkit import _pattern, _rdkit_reason, mol_weight, rdkit_messages  # noqa: F401 (re-exported)
 from ..errors import StructureError
-from .reading import (DEFAULT_MAX_HEAVY_ATOMS, MAX_COMPONENTS, _parse,  # noqa: F401
-                              check_smiles_text, iter_sdf)
+from ._rdkit import _pattern, _rdkit_reason, mol_weight, rdkit_messages  # noqa: F401 (re-exported)
+from .reading import DEFAULT_MAX_HEAVY_ATOMS, MAX_COMPONENTS, _parse, check_smiles_text, iter_sdf  # noqa: F401
+
 if TYPE_CHECKING:
     from rdkit import Chem
 

@@ -6,11 +6,11 @@ Returns RDKit molecules for :func:`saltplan.structure.standardize`; refusals rai
 from __future__ import annotations
 
 import re
+from collections.abc import Iterator
 from pathlib import Path
-from typing import Iterator
 
-from ._rdkit import _rdkit_reason, rdkit_messages
 from ..errors import StructureError
+from ._rdkit import _rdkit_reason, rdkit_messages
 
 DEFAULT_MAX_HEAVY_ATOMS = 150
 #: more disconnected components than this is not a drawn salt or solvate (API, counterions,

@@ -159,6 +159,8 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
             if who not in concerned:
                 concerned.append(who)
     verdict = plan.get("verdict") or {}
+    worst = min(caveats.items(), default=None)          # most severe first (sorted keys)
+    minimum = (plan.get("thresholds") or {}).get("likely")
     return {
         "smiles": parent.get("smiles"),
         "supplied_as": parent.get("supplied_as"),
@@ -174,7 +176,15 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
             for c in shown),
         "caveats": "; ".join(f"{code} ({sev}): {', '.join(who)}"
                              for (_o, code, sev), who in sorted(caveats.items())),
-        "_top_ids": [c["counterion"] for c in shown],   # for the summary; not a column
+        # for the summary page; not columns
+        "_top_ids": [c["counterion"] for c in shown],
+        "_top": [f"{c['counterion']} {c.get('stoichiometry', '1:1')}" for c in shown],
+        "_basic_unc": bases[0].get("uncertainty") if bases else None,
+        "_acidic_unc": acids[0].get("uncertainty") if acids else None,
+        "_margin": (round(shown[0]["delta_pka"] - minimum, 2)
+                    if shown and minimum is not None else None),
+        "_serious": (f"{worst[0][1]} ({worst[0][2]}): {', '.join(worst[1])}"
+                     if worst is not None else None),
     }
 
 
@@ -407,7 +417,8 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
               summary: str | Path | None = None, **options: Any) -> BatchRun:
     """Evaluate and stream the rows to ``out`` (.csv, .json, .jsonl or .xlsx).
 
-    ``summary``: also write the HTML summary there. Options as for :func:`evaluate_many`.
+    ``summary``: also write the HTML summary there; ``source_label`` names the input on it
+    (default: the input file's name). Other options as for :func:`evaluate_many`.
     Files are written to temporary names and renamed only when the run completes, so a
     failed run leaves no partial output.
     """
@@ -418,7 +429,8 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     from .summary import SummaryBuilder
 
     is_frame = hasattr(dataframe_or_path, "columns")
-    label = "DataFrame" if is_frame else Path(dataframe_or_path).name
+    label = options.pop("source_label", None) or (
+        "a table passed in memory" if is_frame else Path(dataframe_or_path).name)
     targets = [Path(out).resolve()] + ([Path(summary).resolve()] if summary is not None else [])
     if not is_frame and Path(dataframe_or_path).resolve() in targets:
         raise ParameterError("the output would replace the input file", file=str(out))

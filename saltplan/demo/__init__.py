@@ -163,7 +163,8 @@ def _batch(out: Path) -> list[str]:
     rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
             for c in load_programme()]
     run = run_batch(pd.DataFrame(rows), out / "portfolio.csv", summary=out / "portfolio-summary.html",
-                    dose_column="dose_mg", id_column="id", name_column="name")
+                    dose_column="dose_mg", id_column="id", name_column="name",
+                    source_label="programme.yaml (the invented Heron programme)")
     return [str(p) for p in run.outputs]
 
 

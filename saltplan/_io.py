@@ -7,9 +7,13 @@ cannot be written raises :class:`~saltplan.errors.OutputFileError` naming the pa
 from __future__ import annotations
 
 import contextlib
+import csv
+import io
 import os
+import re
 import tempfile
 from pathlib import Path
+from typing import Any, Iterable
 
 
 def _cannot_write(path: Path, exc: OSError):
@@ -106,3 +110,63 @@ class OutputSet:
                 raise
             written.append(path)
         return written
+
+
+# --------------------------------------------------------------------------- spreadsheet safety
+#: first characters that make a spreadsheet read a CSV cell as a formula. The list and the
+#: remedy (prefix the cell with a single quote so it is read as text) follow the OWASP
+#: "CSV Injection" guidance (owasp.org/www-community/attacks/CSV_Injection).
+FORMULA_TRIGGERS = ("=", "+", "-", "@", "\t", "\r")
+#: a plain decimal number ("-1.2", "+3", "-0.5e-3"): a number, never a formula
+_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?\Z")
+
+
+def _needs_quote(text: str) -> bool:
+    if not text:
+        return False
+    if text[0] in FORMULA_TRIGGERS:
+        return not _NUMBER.match(text)
+    # a cell that already starts with the quote of a neutralized cell gets one more, so
+    # that reading it back (:func:`spreadsheet_text`) gives the original text exactly
+    return text[0] == "'" and _needs_quote(text[1:])
+
+
+def spreadsheet_safe(value: Any) -> str:
+    """The text of one CSV cell, neutralized so that no spreadsheet runs it as a formula.
+
+    Text starting with ``=``, ``+``, ``-``, ``@``, a tab or a carriage return gets a leading
+    single quote (OWASP "CSV Injection"); real numbers (``-1.2``) are left as they are.
+    """
+    text = "" if value is None else str(value)
+    return "'" + text if _needs_quote(text) else text
+
+
+def spreadsheet_text(cell: str) -> str:
+    """Undo :func:`spreadsheet_safe` on a cell read back from a CSV the tool wrote."""
+    if cell.startswith("'") and _needs_quote(cell[1:]):
+        return cell[1:]
+    return cell
+
+
+class SafeCsvWriter:
+    """``csv.writer`` whose every cell goes through :func:`spreadsheet_safe`.
+
+    Every CSV saltplan writes uses this class (checked by tests/test_reliability_csv.py).
+    """
+
+    def __init__(self, fh, **options):
+        options.setdefault("lineterminator", "\n")
+        self._writer = csv.writer(fh, **options)
+
+    def writerow(self, row: Iterable[Any]) -> None:
+        self._writer.writerow([spreadsheet_safe(v) for v in row])
+
+    def writerows(self, rows: Iterable[Iterable[Any]]) -> None:
+        self._writer.writerows([spreadsheet_safe(v) for v in row] for row in rows)
+
+
+def csv_text(rows: Iterable[Iterable[Any]]) -> str:
+    """CSV text of ``rows`` (``\\n`` line ends), every cell spreadsheet-safe."""
+    buf = io.StringIO()
+    SafeCsvWriter(buf).writerows(rows)
+    return buf.getvalue()

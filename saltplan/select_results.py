@@ -47,6 +47,7 @@ from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any, Iterable
 
+from ._io import spreadsheet_text
 from .errors import ResultsError
 
 #: marker a comment line carries in an invented (demo) results file
@@ -421,7 +422,8 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
             if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
                 raise ResultsError(f"{len(cells)} cells but the header has {len(header)} columns",
                                    file=origin, row=row)
-            record = dict(zip(header, (c for c in cells)))
+            # a cell the tool neutralized for spreadsheets ("'=...") reads as its text
+            record = dict(zip(header, (spreadsheet_text(c) for c in cells)))
             obs = _row(record, wells, seen, row, origin, delimiter != ",")
             if obs is not None:
                 found[obs.well] = obs

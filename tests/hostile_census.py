@@ -87,6 +87,25 @@ CLASSES = {
     ("limits", "test_underflowing_solubility_estimate_is_a_clear_error"): "heavy-atom cap and --max-atoms",
     ("limits", "test_default_heavy_atom_cap"): "heavy-atom cap and --max-atoms",
     ("limits", "test_cap_counts_the_api_not_its_counterions"): "heavy-atom cap and --max-atoms",
+    ("csv", "test_helper_quotes_hostile_text_and_reads_it_back"):
+        "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
+    ("csv", "test_helper_keeps_numbers"): "CSV formula injection: negative numbers stay numbers",
+    ("csv", "test_helper_round_trips_quote_like_text"):
+        "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
+    ("csv", "test_every_csv_writer_goes_through_the_helper"):
+        "CSV formula injection: every CSV writer uses the shared helper (source audit)",
+    ("csv", "test_batch_csv_neutralized_library"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_batch_csv_neutralized_cli"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_batch_json_keeps_the_original_text"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_screen_csvs_neutralized_library"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_screen_and_demo_results_csvs_cli"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_results_template_read_back_unquotes"):
+        "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
     ("properties", "test_para_nitro_never_raises_acid_pka"): "chemical sanity: para-nitro on phenols / benzoic acids (pairs)",
     ("properties", "test_para_donor_never_lowers_aryl_base_pka"): "chemical sanity: para-Me / OMe on anilines / pyridines (pairs)",
     ("properties", "test_c_methyl_never_lowers_amine_pka"): "chemical sanity: C-methyl on aliphatic amines (pairs)",

@@ -67,14 +67,20 @@ class _TempTarget:
         if self.path.is_dir():
             raise ParameterError("output path is a directory", file=str(self.path))
         self.path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=".part",
-                                   dir=self.path.parent)
-        os.close(fd)
-        self.tmp = Path(tmp)
+        from ._io import uninterrupted
+
+        with uninterrupted():  # a signal here must not leave a temporary nobody knows of
+            fd, tmp = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=".part",
+                                       dir=self.path.parent)
+            os.close(fd)
+            self.tmp = Path(tmp)
         os.chmod(self.tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
 
     def replace(self) -> Path:
+        from ._io import published
+
         os.replace(self.tmp, self.path)
+        published(self.path)
         return self.path
 
     def remove(self) -> None:

@@ -106,6 +106,16 @@ CLASSES = {
         "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
     ("csv", "test_results_template_read_back_unquotes"):
         "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
+    ("signals", "test_batch_jobs_2_stops_cleanly_on_signal"):
+        "SIGTERM / SIGINT during batch --jobs 2 (real CLI): workers stopped, no temporary, exit 143 / 130",
+    ("signals", "test_parent_killed_by_sigkill_takes_its_workers_along"):
+        "SIGKILL of the batch parent: no orphaned workers",
+    ("signals", "test_library_run_batch_unwinds_on_signal"):
+        "SIGINT / SIGTERM through the library (run_batch, jobs 2): no temporary, no worker left",
+    ("signals", "test_commands_stop_cleanly_on_signal"):
+        "SIGTERM / SIGINT during screen, select, demo, batch: one line, nothing written",
+    ("signals", "test_signal_while_outputs_are_renamed_waits_for_the_set"):
+        "signal while outputs are renamed: the set completes, the line says so",
     ("properties", "test_para_nitro_never_raises_acid_pka"): "chemical sanity: para-nitro on phenols / benzoic acids (pairs)",
     ("properties", "test_para_donor_never_lowers_aryl_base_pka"): "chemical sanity: para-Me / OMe on anilines / pyridines (pairs)",
     ("properties", "test_c_methyl_never_lowers_amine_pka"): "chemical sanity: C-methyl on aliphatic amines (pairs)",

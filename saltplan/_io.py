@@ -14,8 +14,9 @@ import re
 import signal
 import tempfile
 import threading
+from collections.abc import Iterable
 from pathlib import Path
-from typing import Any, Iterable
+from typing import Any
 
 
 def _cannot_write(path: Path, exc: OSError):
@@ -117,7 +118,7 @@ class OutputSet:
                 for later, _ in staged[i:]:
                     with contextlib.suppress(FileNotFoundError):
                         os.unlink(later)
-                for done, was_there in zip(written, existed):
+                for done, was_there in zip(written, existed, strict=False):
                     if not was_there:
                         with contextlib.suppress(FileNotFoundError):
                             os.unlink(done)

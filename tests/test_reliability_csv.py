@@ -96,7 +96,7 @@ def _hostile_table(tmp_path) -> Path:
     with src.open("w", encoding="utf-8", newline="") as fh:
         w = csv.writer(fh)
         w.writerow(["id", "name", "smiles", "pka"])
-        for case, text in sorted(HOSTILE.items()):
+        for _case, text in sorted(HOSTILE.items()):
             w.writerow([text, text, "c1ccncc1", "base=-1.2"])   # measured pKa negative
         w.writerow(["-0.5", "=bad smiles", "=1+2", ""])        # error row echoes the input
     return src
@@ -146,7 +146,7 @@ def test_batch_json_keeps_the_original_text(tmp_path):
 
 # ------------------------------------------------------------------ screen outputs
 def _hostile_design():
-    from saltplan.screen_output import screen_structure
+    from saltplan.screen.output import screen_structure
 
     design, _ = screen_structure(API, 500)
     d = design.to_dict()
@@ -159,7 +159,7 @@ def _hostile_design():
 
 
 def test_screen_csvs_neutralized_library():
-    from saltplan.screen_output import plate_csv, results_template_csv, worksheet_csv
+    from saltplan.screen.output import plate_csv, results_template_csv, worksheet_csv
 
     d = _hostile_design()
     for render in (worksheet_csv, plate_csv, results_template_csv):
@@ -179,7 +179,7 @@ def test_screen_and_demo_results_csvs_cli(cli, tmp_path):
     assert {p.name for p in csvs} >= {"worksheet.csv", "plate.csv", "results-template.csv"}
     for p in csvs:
         _assert_no_live_formula(p.read_text(encoding="utf-8"))
-    from saltplan.demo_results import make_demo_results
+    from saltplan.demo.results import make_demo_results
 
     design = (tmp_path / "s" / "design.json").read_text(encoding="utf-8")
     import json
@@ -190,8 +190,8 @@ def test_screen_and_demo_results_csvs_cli(cli, tmp_path):
 
 def test_results_template_read_back_unquotes(tmp_path):
     """A results file saved from a neutralized template reads as the original text."""
-    from saltplan.screen_output import screen_structure
-    from saltplan.select_results import read_results
+    from saltplan.screen.output import screen_structure
+    from saltplan.select.results import read_results
 
     design, _ = screen_structure(API, 500, out_dir=tmp_path / "d")
     d = design.to_dict()

@@ -19,7 +19,6 @@ from pathlib import Path
 
 import psutil
 import pytest
-
 from hostile import files_under
 
 pytestmark = pytest.mark.skipif(os.name != "posix", reason="POSIX signals")
@@ -183,8 +182,8 @@ _SIGNAL_AT = textwrap.dedent("""
 
 @pytest.fixture(scope="module")
 def screened(tmp_path_factory):
-    from saltplan.demo_results import make_demo_results
-    from saltplan.screen_output import screen_structure
+    from saltplan.demo.results import make_demo_results
+    from saltplan.screen.output import screen_structure
 
     tmp = tmp_path_factory.mktemp("screened")
     design, _ = screen_structure(API, 500, out_dir=tmp / "design")
@@ -194,12 +193,12 @@ def screened(tmp_path_factory):
 
 
 CASES = {
-    "screen": ("saltplan.screen_output", "results_template_csv",
+    "screen": ("saltplan.screen.output", "results_template_csv",
                lambda t, s: ["screen", API, "--api-budget-mg", 500, "--out", t]),
-    "select": ("saltplan.select_report", "render_decision_json",
+    "select": ("saltplan.reports.decision", "render_decision_json",
                lambda t, s: ["select", s[0], s[1], "--out", t]),
     "demo": ("saltplan.demo", "_write_environment", lambda t, s: ["demo", "--out", t]),
-    "batch": ("saltplan.batch_summary", "render_summary",
+    "batch": ("saltplan.reports.portfolio", "render_summary",
               lambda t, s: ["batch", s[2], "--out", t / "t.csv", "--summary", t / "s.html",
                             "--quiet"]),
 }

@@ -17,14 +17,15 @@ This module orchestrates; it holds no chemistry.
 """
 from __future__ import annotations
 
+import contextlib
 import math
 import threading
 from collections import deque
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Generator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
-from ..errors import ParameterError, SaltplanError
+from ..errors import Interrupted, ParameterError, SaltplanError
 from .sources import ColumnSpec, Record, column_spec, mark_duplicates, open_source
 
 if TYPE_CHECKING:
@@ -200,19 +201,54 @@ def evaluate_chunk(chunk: Sequence[Record], settings: Settings) -> list[dict[str
 
 
 # --------------------------------------------------------------------------- engines
-def _run_local(chunks, settings) -> Iterator[list[dict]]:
+def _run_local(chunks, settings) -> Generator[list[dict], None, None]:
     for chunk in chunks:
         yield evaluate_chunk(chunk, settings)
 
 
-def _run_pool(chunks, settings, jobs: int) -> Iterator[list[dict]]:
+def _worker_init() -> None:
+    """Set up a pool worker: the parent alone handles Ctrl-C and stops the workers (a
+    terminal sends SIGINT to the whole process group); SIGTERM ends a worker at once; on
+    Linux a worker also ends when its parent dies, even by SIGKILL (no orphans)."""
+    import signal
+    import sys
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGTERM)  # PR_SET_PDEATHSIG
+        except (OSError, AttributeError):  # pragma: no cover - prctl is always there on Linux
+            pass
+
+
+def _stop_pool(pool) -> None:
+    """Stop a pool at once: pending chunks cancelled, running workers terminated."""
+    procs = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in procs:
+        with contextlib.suppress(Exception):
+            proc.terminate()
+    for proc in procs:
+        with contextlib.suppress(Exception):
+            proc.join(5)
+            if proc.is_alive():  # pragma: no cover - SIGTERM is not caught by workers
+                proc.kill()
+                proc.join(5)
+
+
+def _run_pool(chunks, settings, jobs: int) -> Generator[list[dict], None, None]:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
 
     # the platform's default start method: "fork" on Linux (an evaluator defined in a
     # script or notebook works as is), "spawn" on macOS and Windows
-    pool = ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context())
+    pool = ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context(),
+                               initializer=_worker_init)
     pending: deque = deque()
+    finished = False
     try:
         for chunk in chunks:
             pending.append(pool.submit(evaluate_chunk, chunk, settings))
@@ -220,8 +256,12 @@ def _run_pool(chunks, settings, jobs: int) -> Iterator[list[dict]]:
                 yield pending.popleft().result()
         while pending:
             yield pending.popleft().result()
+        finished = True
     finally:
-        pool.shutdown(wait=True, cancel_futures=True)
+        if finished:
+            pool.shutdown(wait=True)
+        else:  # interrupted, failed or abandoned: do not wait for the running chunks
+            _stop_pool(pool)
 
 
 def _dask_client(scheduler):
@@ -243,7 +283,7 @@ def _dask_client(scheduler):
                              field="scheduler") from None
 
 
-def _run_dask(chunks, settings, scheduler) -> Iterator[list[dict]]:
+def _run_dask(chunks, settings, scheduler) -> Generator[list[dict], None, None]:
     client, own = _dask_client(scheduler)
     pending: deque = deque()
     try:
@@ -251,16 +291,17 @@ def _run_dask(chunks, settings, scheduler) -> Iterator[list[dict]]:
         for chunk in chunks:
             pending.append(client.submit(evaluate_chunk, chunk, settings, pure=False))
             if len(pending) >= _WINDOW_PER_WORKER * slots:
-                future = pending.popleft()
-                yield future.result()
-                future.release()
+                rows = pending[0].result()  # stays in `pending` until done (cancelled if not)
+                pending.popleft().release()
+                yield rows
         while pending:
-            future = pending.popleft()
-            yield future.result()
-            future.release()
+            rows = pending[0].result()
+            pending.popleft().release()
+            yield rows
     finally:
-        for future in pending:
-            future.cancel()
+        if pending:  # interrupted or failed: cancel the submitted work on the cluster
+            with contextlib.suppress(Exception):
+                client.cancel(list(pending))
         if own:
             client.close()
 
@@ -296,7 +337,7 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
                   libraries: Sequence[str] | None = None, top: int = 3,
                   progress: Callable[[int, int | None], None] | None = None,
                   evaluator: Callable[..., Any] | None = None,
-                  ) -> Iterator[list[dict[str, Any]]]:
+                  ) -> Generator[list[dict[str, Any]], None, None]:
     """Evaluate a table of candidates, yielding the output rows chunk by chunk.
 
     Same parameters as :func:`evaluate_many`. Each item is a list of row dicts (keys
@@ -319,11 +360,14 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
     else:
         results = _run_local(chunks, settings)
     done = 0
-    for rows in results:
-        done += len(rows)
-        if progress is not None:
-            progress(done, source.estimated_rows)
-        yield rows
+    try:
+        for rows in results:
+            done += len(rows)
+            if progress is not None:
+                progress(done, source.estimated_rows)
+            yield rows
+    finally:
+        results.close()  # an abandoned run stops its workers now, not when collected
 
 
 def evaluate_many(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column: str = "smiles",
@@ -441,7 +485,10 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     user_progress = options.pop("progress", None)
     first_call = [True]
 
+    estimated = [None]
+
     def progress(done, total):
+        estimated[0] = total
         # refuse an oversized XLSX after the first chunk rather than at the sheet's end
         # (the row estimate counts lines, so allow it a little slack)
         cap = getattr(writer, "max_rows", None)
@@ -451,18 +498,28 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
         if user_progress is not None:
             user_progress(done, total)
 
+    stream = iter_evaluate(dataframe_or_path, progress=progress, **options)
+    done = 0
     try:
-        for rows in iter_evaluate(dataframe_or_path, progress=progress, **options):
+        for rows in stream:
             writer.write(rows)
             builder.add(rows)
+            done += len(rows)
         pending = [writer]
         if summary is not None:
             from .outputs import PendingFile
 
             pending.append(PendingFile(summary, render_summary(builder.result())))
-        outputs = tuple(str(p.commit()) for p in pending)
-    except BaseException:
+        from .._io import uninterrupted
+
+        with uninterrupted():  # all outputs or none, whenever a signal comes
+            outputs = tuple(str(p.commit()) for p in pending)
+    except BaseException as exc:
+        stream.close()
         writer.abort()
+        if isinstance(exc, Interrupted) and exc.done is None:
+            total = estimated[0]
+            exc.done = (f"{done:,} of about {total:,} rows" if total else f"{done:,} rows")
         raise
     res = builder.result()
     return BatchRun(rows=res.rows, failed=res.failed, duplicates=res.duplicates,

@@ -60,12 +60,16 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
         raise OutputFileError(f"cannot write output: {exc.strerror or exc}", file=str(out)) from None
     try:
         summary = _run_demo(stage)
+        from .._io import published, uninterrupted
+
         moved = []
-        for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
-            target = out / rel
-            target.parent.mkdir(parents=True, exist_ok=True)
-            (stage / rel).replace(target)
-            moved.append(str(target))
+        with uninterrupted():  # a signal waits until the whole demo is in place
+            for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
+                target = out / rel
+                target.parent.mkdir(parents=True, exist_ok=True)
+                (stage / rel).replace(target)
+                published(target)
+                moved.append(str(target))
         summary["written"] = moved
         return summary
     finally:

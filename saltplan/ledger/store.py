@@ -195,7 +195,8 @@ def _scrub(text: str) -> str:
 
 
 def open_ledger(url: str | os.PathLike | None = None, *, create: bool = True,
-                migrate: bool = True, author: str | None = None) -> "Ledger":
+                migrate: bool = True, author: str | None = None,
+                timeout: float = 60.0) -> "Ledger":
     """Open (and if need be create and migrate) a ledger.
 
     Parameters
@@ -212,6 +213,8 @@ def open_ledger(url: str | os.PathLike | None = None, *, create: bool = True,
         schema is an error.
     author : str, optional
         Default author of the records written through this handle (else the OS user).
+    timeout : float
+        SQLite: seconds to wait for another writer before "locked" [default 60].
 
     Raises
     ------
@@ -234,7 +237,7 @@ def open_ledger(url: str | os.PathLike | None = None, *, create: bool = True,
         parsed = parsed.set(drivername="postgresql+psycopg")
     where = _display(parsed)
     if backend == "sqlite":
-        engine = _sqlite_engine(parsed, where, create)
+        engine = _sqlite_engine(parsed, where, create, timeout)
     else:
         engine = sa.create_engine(parsed, pool_pre_ping=False, hide_parameters=True)
     ledger = Ledger(engine, where, author=author)
@@ -246,9 +249,9 @@ def open_ledger(url: str | os.PathLike | None = None, *, create: bool = True,
     return ledger
 
 
-def _sqlite_engine(url: sa.URL, where: str, create: bool) -> sa.Engine:
+def _sqlite_engine(url: sa.URL, where: str, create: bool, timeout: float) -> sa.Engine:
     path = url.database
-    if path and path != ":memory:":
+    if path and path != ":memory:" and not url.query.get("uri"):
         p = Path(path)
         if p.is_dir():
             raise LedgerError("is a folder, not a ledger file; name a file (e.g. "
@@ -266,14 +269,14 @@ def _sqlite_engine(url: sa.URL, where: str, create: bool) -> sa.Engine:
             raise LedgerError("ledger is read-only (the file or its folder cannot be "
                               "written, and SQLite's WAL mode needs both); ask for write "
                               "access, or copy it and point --ledger at the copy", file=where)
-    engine = sa.create_engine(url, connect_args={"timeout": 60.0})
+    engine = sa.create_engine(url, connect_args={"timeout": float(timeout)})
 
     @event.listens_for(engine, "connect")
     def _on_connect(dbapi_conn, _record):
-        dbapi_conn.isolation_level = None          # we issue BEGIN ourselves
+        # we issue BEGIN ourselves; the busy wait is the driver's `timeout`
+        dbapi_conn.isolation_level = None
         cur = dbapi_conn.cursor()
         try:
-            cur.execute("PRAGMA busy_timeout = 60000")
             cur.execute("PRAGMA journal_mode = WAL")
             cur.execute("PRAGMA synchronous = NORMAL")
         finally:

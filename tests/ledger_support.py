@@ -1,6 +1,7 @@
 """Ledger test support: a fresh ledger URL on SQLite or on PostgreSQL.
 
-PostgreSQL comes from ``SALTPLAN_TEST_PG_URL`` (``.ci/postgres.sh start`` prints it). Without
+PostgreSQL comes from ``SALTPLAN_TEST_PG_URL`` (``.ci/run`` sources ``.ci/postgres.sh``, which
+exports it; by hand: ``eval "$(.ci/postgres.sh start)"``). Without
 it the PostgreSQL cases are skipped with the reason, except under ``CI=true`` where they
 fail: CI must run them.
 """
@@ -24,7 +25,7 @@ def pg_server_url() -> str:
     if not url:
         if os.environ.get("CI", "").lower() == "true":
             pytest.fail("CI=true but SALTPLAN_TEST_PG_URL is not set: .ci/run must start "
-                        "PostgreSQL with `eval \"$(.ci/postgres.sh start)\"`")
+                        "PostgreSQL (`. .ci/postgres.sh DIR`)")
         pytest.skip("PostgreSQL ledger tests need a server: run `eval \"$(.ci/postgres.sh "
                     "start)\"` (sets SALTPLAN_TEST_PG_URL)")
     return url

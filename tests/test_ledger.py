@@ -9,10 +9,10 @@ import multiprocessing as mp
 import os
 import signal
 import sqlite3
+from pathlib import Path
 
 import pytest
 import sqlalchemy as sa
-
 from ledger_support import ENGINES, demo_design, demo_results, fresh_url
 
 from saltplan.ledger import LedgerError, StaleVersionError, open_ledger
@@ -273,7 +273,8 @@ def test_upgrade_from_the_first_schema_keeps_records_and_builds_the_index(url, t
             row["body"] = json.dumps(row["body"])
             conn.execute(table.insert().values(**{k: v for k, v in row.items()
                                                   if k in table.c}))
-        assert conn.execute(sa.text(f"SELECT version_num FROM {VERSION_TABLE}")).scalar() == "0001"
+        version = sa.table(VERSION_TABLE, sa.column("version_num"))
+        assert conn.execute(sa.select(version.c.version_num)).scalar() == "0001"
     old.dispose()
     with open_ledger(url) as led:
         assert led.schema_revision() == "0002"
@@ -324,13 +325,55 @@ def test_read_only_ledger_names_the_file(tmp_path, design):
             ro.record_plan(dict(design["plan"], name="HRN-170"))
 
 
-@pytest.mark.skipif(os.geteuid() == 0, reason="root ignores file permissions")
-def test_read_only_file_permissions(tmp_path):  # pragma: no cover - CI runs as root
-    path = tmp_path / "perm.sqlite"
+def _open_as_nobody(path, conn):
+    """Child (forked, root): become the unprivileged ``nobody`` (uid/gid 65534) and try to
+    open the ledger; send back the error text."""
+    try:
+        os.setgroups([])
+        os.setgid(65534)
+        os.setuid(65534)
+        open_ledger(path).close()
+        conn.send("opened")
+    except LedgerError as exc:
+        conn.send(str(exc))
+    except BaseException as exc:  # pragma: no cover - reported to the parent
+        conn.send(f"unexpected {type(exc).__name__}: {exc}")
+
+
+def test_read_only_file_permissions(tmp_path):
+    """A ledger file and folder the user may not write (mode 0444 / 0555): one line naming
+    the file and what to do. Root ignores permissions, so as root (CI) the opening runs in
+    a child that drops to the unprivileged ``nobody``."""
+    import saltplan.ledger.store  # noqa: F401 - loaded before the fork
+
+    folder = tmp_path / "ro"
+    if os.geteuid() == 0:
+        import tempfile
+
+        folder = Path(tempfile.mkdtemp(prefix="saltplan-ro-"))   # reachable by nobody
+    folder.mkdir(exist_ok=True)
+    path = folder / "perm.sqlite"
     open_ledger(path).close()
     path.chmod(0o444)
-    with pytest.raises(LedgerError, match="read-only"):
-        open_ledger(path)
+    folder.chmod(0o555)
+    try:
+        if os.geteuid() == 0:
+            parent, child = mp.Pipe()
+            p = mp.get_context("fork").Process(target=_open_as_nobody, args=(path, child))
+            p.start()
+            p.join(60)
+            msg = parent.recv() if parent.poll(5) else "no answer"
+        else:  # pragma: no cover - CI runs as root
+            with pytest.raises(LedgerError) as err:
+                open_ledger(path)
+            msg = str(err.value)
+        assert "read-only" in msg and str(path) in msg and "\n" not in msg, msg
+    finally:
+        folder.chmod(0o755)
+        if os.geteuid() == 0:
+            import shutil
+
+            shutil.rmtree(folder)
 
 
 def test_locked_ledger_is_a_clear_error(tmp_path, design):

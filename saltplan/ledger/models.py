@@ -18,8 +18,7 @@ Tables
 """
 from __future__ import annotations
 
-from sqlalchemy import (Boolean, Float, Index, Integer, String, Text,
-                        UniqueConstraint)
+from sqlalchemy import Boolean, Float, Index, Integer, String, Text, UniqueConstraint
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 
 #: kinds of ``records`` rows

@@ -12,12 +12,14 @@ import getpass
 import json
 import os
 import re
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import IO, Any, Iterable, Iterator
+from typing import IO, Any
 
 import sqlalchemy as sa
-from sqlalchemy import event, exc as sa_exc
+from sqlalchemy import event
+from sqlalchemy import exc as sa_exc
 from sqlalchemy.engine import make_url
 
 from .._version import __version__
@@ -196,7 +198,7 @@ def _scrub(text: str) -> str:
 
 def open_ledger(url: str | os.PathLike | None = None, *, create: bool = True,
                 migrate: bool = True, author: str | None = None,
-                timeout: float = 60.0) -> "Ledger":
+                timeout: float = 60.0) -> Ledger:
     """Open (and if need be create and migrate) a ledger.
 
     Parameters
@@ -304,7 +306,7 @@ def head_revision() -> str:
     from alembic.script import ScriptDirectory
 
     cfg = _alembic_config(None)
-    return ScriptDirectory.from_config(cfg).get_current_head()
+    return str(ScriptDirectory.from_config(cfg).get_current_head())
 
 
 def known_revisions() -> list[str]:
@@ -770,7 +772,7 @@ class Ledger:
             out["observation"] = conn.execute(
                 sa.select(sa.func.count()).select_from(Observation)).scalar()
             conn.rollback()
-        return out
+        return {k: int(v or 0) for k, v in out.items()}
 
     # ------------------------------------------------------------------ integrity
     def verify(self) -> VerifyReport:
@@ -838,7 +840,8 @@ class Ledger:
                 text = Path(source).read_text(encoding="utf-8")
             except (OSError, UnicodeDecodeError) as exc:
                 raise LedgerError(f"cannot read the export ({exc})", file=name) from None
-        models = {"compound": Compound, "record": Record, "observation": Observation}
+        models: dict[str, Any] = {"compound": Compound, "record": Record,
+                                  "observation": Observation}
         rows = []
         for n, line in enumerate(text.splitlines(), start=1):
             if not line.strip():
@@ -902,7 +905,7 @@ class _Tx:
 
     def __init__(self, ledger: Ledger):
         self.ledger = ledger
-        self.ctx = None
+        self.ctx: Any = None
 
     def __enter__(self):
         try:
@@ -984,12 +987,12 @@ def _programme_of(name: str | None) -> str:
 def _inchikey(smiles: str) -> str:
     from rdkit import Chem, RDLogger
 
-    RDLogger.DisableLog("rdApp.*")
+    RDLogger.DisableLog("rdApp.*")  # type: ignore[attr-defined]
     try:
         mol = Chem.MolFromSmiles(smiles)
         key = Chem.MolToInchiKey(mol) if mol is not None else ""
     finally:
-        RDLogger.EnableLog("rdApp.*")
+        RDLogger.EnableLog("rdApp.*")  # type: ignore[attr-defined]
     return key or "unknown"
 
 

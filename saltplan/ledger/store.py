@@ -128,10 +128,32 @@ class Outcomes:
                               "intended one",
                 "by_programme": [r.to_dict() for r in self.rows]}
 
+    def render(self) -> str:
+        """Plain-text view (terminal, demo): one row per programme and a total."""
+        site = self.site_class or "any site class"
+        if self.pka_min is None and self.pka_max is None:
+            rng = "any pKa"
+        else:
+            lo = "" if self.pka_min is None else f"{self.pka_min:g}"
+            hi = "" if self.pka_max is None else f"{self.pka_max:g}"
+            rng = f"pKa {lo}–{hi}"
+        lines = [f"outcomes    {self.counterion} on {site}, {rng}"]
+        if not self.rows:
+            lines.append("no recorded screen tried it on such a site")
+        else:
+            rows = [[r.programme, r.screens, r.crystalline, ", ".join(r.compounds)]
+                    for r in self.rows]
+            rows.append(["all", self.screens, self.crystalline, ""])
+            lines.append(_text_table(rows, ["programme", "screens", "crystalline", "compounds"]))
+        lines.append("(screens = recorded results files whose design had the counterion on such "
+                     "a site; crystalline = at least one well crystalline, not a free-form "
+                     "pattern, stoichiometry within 10 % of the intended one)")
+        return "\n".join(lines)
+
 
 @dataclass(frozen=True)
 class InhouseEvidence:
-    """A snapshot of the outcome index for the ranking (see :mod:`saltplan.ledger.prior`).
+    """A snapshot of the outcome index for the ranking (see :mod:`saltplan.plan.inhouse`).
 
     ``facts`` holds (counterion, site_class, site_pka, success, programme, chain)."""
 
@@ -486,7 +508,8 @@ class Ledger:
         """Record a results file (:class:`~saltplan.select.Results` or its dict) with one
         observation (version 1) per reported well, against the screen ``screen_uid`` or the
         ``design`` (recorded too when given instead). ``replaces`` names the results record
-        this file revises (refused when that one already has a newer revision)."""
+        this file revises (refused when that one already has a newer revision). The same file
+        recorded again for the same screen is returned (``existing=True``), not stored twice."""
         data = plain(results)
         _need(data, ("observations",), "results", self.where)
         with self._tx() as conn:
@@ -499,6 +522,10 @@ class Ledger:
             screen_row = self._row(conn, self._ref(conn, screen_uid, "screen").uid)
             prov = (json.loads(screen_row.body).get("plan") or {}).get("provenance") or {}
             prov = dict(prov, input_hash="sha256:" + str(data.get("sha256") or ""))
+            same = self._same_body(conn, "results", data, prov["input_hash"],
+                                   parent_uid=screen_uid)
+            if same is not None and replaces is None:   # the same file recorded again
+                return same
             ref = self._record(conn, "results", data, author, created,
                                compound_uid=screen_row.compound_uid, parent_uid=screen_uid,
                                replaces=replaces, hashes=prov)
@@ -567,12 +594,32 @@ class Ledger:
                 latest[well] = (version, json.loads(body))
         return [dict(b, version=v) for v, b in latest.values()]
 
-    def record_selection(self, selection, *, results_uid: str, author: str | None = None,
-                         replaces: str | None = None, created: str | None = None) -> Ref:
+    def find_results(self, sha256: str) -> list[str]:
+        """Uids of the results records of a results file (by its SHA-256), oldest first."""
+        digest = sha256.split(":", 1)[-1]
+        with self.engine.connect() as conn:
+            uids = list(conn.execute(sa.select(Record.uid)
+                                     .where(Record.kind == "results",
+                                            Record.input_hash == "sha256:" + digest)
+                                     .order_by(Record.id)).scalars())
+            conn.rollback()
+        return uids
+
+    def record_selection(self, selection, *, results_uid: str | None = None,
+                         author: str | None = None, replaces: str | None = None,
+                         created: str | None = None) -> Ref:
         """Record a selection (:class:`~saltplan.select.Selection` or its dict) made from
-        the results record ``results_uid``."""
+        the results record ``results_uid`` (default: the newest results record of the file
+        named by the selection's ``provenance.results_hash``)."""
         data = plain(selection)
         _need(data, ("outcome", "provenance"), "selection", self.where)
+        if results_uid is None:
+            found = self.find_results(str(data["provenance"].get("results_hash") or "-"))
+            if not found:
+                raise LedgerError("the results file of this selection is not in the ledger; "
+                                  "record the results first (saltplan ledger record results)",
+                                  file=self.where)
+            results_uid = found[-1]
         with self._tx() as conn:
             res = self._row(conn, self._ref(conn, results_uid, "results").uid)
             return self._record(conn, "selection", data, author, created,
@@ -927,6 +974,16 @@ class _Tx:
 
 
 # --------------------------------------------------------------------------- helpers
+def _text_table(rows: list[list[Any]], headers: list[str]) -> str:
+    """Fixed-width plain-text table (the CLI's layout)."""
+    cells = [headers] + [[str(c) for c in r] for r in rows]
+    widths = [max(len(r[i]) for r in cells) for i in range(len(headers))]
+    lines = ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip()
+             for r in cells]
+    lines.insert(1, "  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
 _COMMON = ("replaces", "revision", "saltplan_version", "author", "created")
 _FIELDS = {
     Compound: ("name", "programme", "parent_smiles", "inchikey", "supplied_form") + _COMMON,

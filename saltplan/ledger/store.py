@@ -8,6 +8,7 @@ revising a row that already has a successor is refused (:class:`StaleVersionErro
 """
 from __future__ import annotations
 
+import functools
 import getpass
 import json
 import os
@@ -436,7 +437,7 @@ class Ledger:
         (``HRN-101`` → ``HRN``), else ``unassigned``.
         """
         with self._tx() as conn:
-            return self._compound(conn, plain(parent), programme, name, author, created)
+            return self._compound(conn, _data(parent), programme, name, author, created)
 
     def _compound(self, conn, parent: dict, programme, name, author, created) -> Ref:
         smiles = parent.get("smiles")
@@ -464,7 +465,7 @@ class Ledger:
         """Record a plan (:class:`~saltplan.plan.Plan` or its ``to_dict()``) and its
         compound, in one transaction. An identical plan body already recorded for the
         compound is returned (``existing=True``) rather than stored twice."""
-        data = plain(plan)
+        data = _data(plan)
         with self._tx() as conn:
             return self._plan(conn, data, programme, author, replaces, created)
 
@@ -472,18 +473,19 @@ class Ledger:
         _need(data, ("parent", "provenance", "candidates"), "plan", self.where)
         comp = self._compound(conn, data["parent"], programme, data.get("name"), author, created)
         prov = data.get("provenance") or {}
-        same = self._same_body(conn, "plan", data, prov.get("input_hash"))
+        text = canonical_json(data)        # encoded once: compared, hashed and stored
+        same = self._same_body(conn, "plan", data, prov.get("input_hash"), text=text)
         if same is not None and replaces is None:
             return same
         return self._record(conn, "plan", data, author, created, compound_uid=comp.uid,
-                            parent_uid=None, replaces=replaces, hashes=prov)
+                            parent_uid=None, replaces=replaces, hashes=prov, text=text)
 
     def record_screen(self, design, *, plan_uid: str | None = None,
                       programme: str | None = None, author: str | None = None,
                       replaces: str | None = None, created: str | None = None) -> Ref:
         """Record a screen design (:class:`~saltplan.screen.ScreenDesign` or its dict).
         Its plan (``design["plan"]``) is recorded too unless ``plan_uid`` names it."""
-        data = plain(design)
+        data = _data(design)
         _need(data, ("plan", "wells"), "screen design", self.where)
         with self._tx() as conn:
             return self._screen(conn, data, plan_uid, programme, author, replaces, created)
@@ -494,13 +496,14 @@ class Ledger:
         else:
             plan_ref = self._ref(conn, plan_uid, "plan")
         plan_row = self._row(conn, plan_ref.uid)
-        same = self._same_body(conn, "screen", data, None, parent_uid=plan_ref.uid)
+        text = canonical_json(data)
+        same = self._same_body(conn, "screen", data, None, parent_uid=plan_ref.uid, text=text)
         if same is not None and replaces is None:
             return same
         prov = data["plan"].get("provenance") or {}
         return self._record(conn, "screen", data, author, created,
                             compound_uid=plan_row.compound_uid, parent_uid=plan_ref.uid,
-                            replaces=replaces, hashes=prov)
+                            replaces=replaces, hashes=prov, text=text)
 
     def record_results(self, results, *, screen_uid: str | None = None, design=None,
                        programme: str | None = None, author: str | None = None,
@@ -510,14 +513,14 @@ class Ledger:
         ``design`` (recorded too when given instead). ``replaces`` names the results record
         this file revises (refused when that one already has a newer revision). The same file
         recorded again for the same screen is returned (``existing=True``), not stored twice."""
-        data = plain(results)
+        data = _data(results)
         _need(data, ("observations",), "results", self.where)
         with self._tx() as conn:
             if screen_uid is None:
                 if design is None:
                     raise LedgerError("results need the screen they belong to (screen uid or "
                                       "design)", file=self.where)
-                screen_uid = self._screen(conn, plain(design), None, programme, author, None,
+                screen_uid = self._screen(conn, _data(design), None, programme, author, None,
                                           created).uid
             screen_row = self._row(conn, self._ref(conn, screen_uid, "screen").uid)
             prov = (json.loads(screen_row.body).get("plan") or {}).get("provenance") or {}
@@ -654,20 +657,21 @@ class Ledger:
             raise LedgerError(f"record '{uid}' is a {row.kind}, not a {kind}", file=self.where)
         return Ref(kind, row.uid, row.revision, existing=True)
 
-    def _same_body(self, conn, kind, data, input_hash, parent_uid=None) -> Ref | None:
+    def _same_body(self, conn, kind, data, input_hash, parent_uid=None,
+                   text: str | None = None) -> Ref | None:
         q = sa.select(Record.uid, Record.revision, Record.body).where(Record.kind == kind)
         if input_hash is not None:
             q = q.where(Record.input_hash == input_hash)
         if parent_uid is not None:
             q = q.where(Record.parent_uid == parent_uid)
-        text = canonical_json(data)
+        text = text if text is not None else canonical_json(data)
         for uid, revision, body in conn.execute(q.order_by(Record.id)).all():
             if body == text:
                 return Ref(kind, uid, revision, existing=True)
         return None
 
     def _record(self, conn, kind, data, author, created, *, compound_uid, parent_uid,
-                replaces, hashes) -> Ref:
+                replaces, hashes, text: str | None = None) -> Ref:
         revision = 1
         chain = None
         if replaces is not None:
@@ -689,18 +693,18 @@ class Ledger:
                  "library_hash": hashes.get("library_hash"),
                  "weights_hash": hashes.get("weights_hash")}
         ref = self._insert(conn, Record, kind, data, author, created, replaces=replaces,
-                           revision=revision, extra=extra, chain=chain)
+                           revision=revision, extra=extra, chain=chain, text=text)
         return ref
 
     def _insert(self, conn, model, kind, body, author, created, *, replaces, revision,
-                extra, chain=None) -> Ref:
+                extra, chain=None, text: str | None = None) -> Ref:
         fields_ = dict(extra, replaces=replaces, revision=revision,
                        saltplan_version=__version__, author=self._author(author),
                        created=created or _now())
-        content = dict(fields_, body=body)
-        checksum = sha256_of(_checksum_content(model, content))
+        text = text if text is not None else canonical_json(body)
+        checksum = _checksum_of_text(model, fields_, text)
         uid = f"{_UID_PREFIX[kind]}-{checksum.split(':', 1)[1][:24]}"
-        values = dict(fields_, uid=uid, body=canonical_json(body), checksum=checksum)
+        values = dict(fields_, uid=uid, body=text, checksum=checksum)
         if model is Record:
             values["chain"] = chain or uid
         exists = conn.execute(sa.select(model.uid).where(model.uid == uid)).scalar()
@@ -993,6 +997,24 @@ _FIELDS = {
 }
 
 
+def _data(value: Any) -> Any:
+    """``value.to_dict()`` when it has one, else ``value`` (encoded once, later)."""
+    return value.to_dict() if hasattr(value, "to_dict") else value
+
+
+def _checksum_of_text(model, fields_: dict, body_text: str) -> str:
+    """The checksum :func:`sha256_of` gives for the content with body ``body_text``
+    (the canonical JSON of the body) spliced in, without encoding the body again: the
+    canonical JSON of a dict is its sorted ``"key":value`` pairs, so the bytes are the
+    same."""
+    import hashlib
+
+    content = {k: fields_.get(k) for k in _FIELDS[model]}
+    parts = [(k, canonical_json(v)) for k, v in content.items()] + [("body", body_text)]
+    text = "{" + ",".join(f"{canonical_json(k)}:{v}" for k, v in sorted(parts)) + "}"
+    return "sha256:" + hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
 def _checksum_content(model, content: dict) -> dict:
     return {k: content.get(k) for k in _FIELDS[model] + ("body",)}
 
@@ -1041,6 +1063,7 @@ def _programme_of(name: str | None) -> str:
     return m.group(1).upper() if m else "unassigned"
 
 
+@functools.lru_cache(maxsize=4096)
 def _inchikey(smiles: str) -> str:
     from rdkit import Chem, RDLogger
 

@@ -10,8 +10,9 @@ the site atom, each tagged with that atom's distance from the site, folded to ``
 * Up to three analogues are shown as steps (structure, measured value, the estimator's
   residual on it, similarity); they add nothing to the value (step value 0).
 * A **correction** = similarity-weighted mean of the analogues' residuals, shrunk toward
-  zero: ``c = Σ wᵢ rᵢ / (κ + Σ wᵢ)`` with ``wᵢ = sᵢ^p`` for the ``k`` nearest analogues with
-  ``sᵢ ≥ s_min`` (zero weight below). As similarity falls the weights vanish and ``c → 0``.
+  zero: ``c = Σ wᵢ rᵢ / (κ + Σ wᵢ)`` with ``wᵢ = ((sᵢ − s_min) / (1 − s_min))^p`` for the
+  ``k`` nearest analogues (zero weight at and below ``s_min``). As similarity falls the
+  weights vanish and ``c → 0``.
   ``k, p, κ, s_min`` were chosen in scaffold-grouped cross-validation
   (``scripts/fit_analogues.py`` → ``data/analogue_fit.yaml``, with provenance).
 * The **uncertainty** is the estimator's own (class σ combined with its extra terms) times a
@@ -36,7 +37,6 @@ from __future__ import annotations
 import dataclasses
 import functools
 import json
-import math
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -298,7 +298,7 @@ class ReferenceTable:
                                       [float(self.residual[i]) for i, _s in used])
         shown = [self.analogue(i, s) for n, (i, s) in enumerate(hits) if n < SHOWN or s >= 1.0]
         return Evidence(shown, corr, weight, hits[0][1] if hits else 0.0,
-                        sum(1 for _i, s in used if s >= fit.min_similarity))
+                        sum(1 for _i, s in used if s > fit.min_similarity))
 
     def correct(self, group_id: str, kind: str, fp, estimate: float, uncertainty: float,
                 fit: Fit | None = None, exclude_scaffold=None) -> tuple[float, float, Evidence]:
@@ -341,12 +341,15 @@ class Fit:
     source: str = ""
 
     def correction(self, sims, residuals) -> tuple[float, float]:
-        """``(correction, total weight)``: ``Σ w r / (κ + Σ w)``, ``w = s^p`` for s ≥ s_min."""
+        """``(correction, total weight)``: ``Σ w r / (κ + Σ w)`` with
+        ``w = ((s − s_min) / (1 − s_min))^p`` (zero at and below ``s_min``), residuals
+        clipped at ``±clip``."""
         num = den = 0.0
+        span = max(1.0 - self.min_similarity, 1e-9)
         for s, r in zip(sims, residuals):
-            if s < self.min_similarity:
+            if s <= self.min_similarity:
                 continue
-            w = s ** self.power
+            w = ((min(s, 1.0) - self.min_similarity) / span) ** self.power
             num += w * max(-self.clip, min(self.clip, r))
             den += w
         if den == 0.0:
@@ -473,9 +476,9 @@ def apply_analogues(mol, sites: list[Site], table: ReferenceTable | None = None,
         used = ev.used
         if ev.weight > 0.0:
             steps.append(Step("measured-analogue correction", ev.correction,
-                              f"sum(w x residual) / ({fit.kappa:.2f} + sum w), w = similarity^"
-                              f"{fit.power:g}, {used} analogue(s) with similarity >= "
-                              f"{fit.min_similarity:.2f}; sum w {ev.weight:.2f}",
+                              f"sum(w x residual) / ({fit.kappa:.2f} + sum w), w = ((similarity - "
+                              f"{fit.min_similarity:.2f}) / {1 - fit.min_similarity:.2f})^"
+                              f"{fit.power:g} over {used} analogue(s); sum w {ev.weight:.2f}",
                               f"saltplan analogue fit ({_origin(FIT_FILE)}); residuals from the "
                               f"{SOURCE_SHORT}"))
         if ev.nearest < fit.domain_similarity:

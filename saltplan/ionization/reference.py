@@ -47,8 +47,7 @@ def scaffold_group(mol, smiles: str) -> str:
 def read_rows(path: str | Path):
     """``(line, row dict)`` of the compilation, line = physical line in the file (header 1)."""
     with open(path, newline="", encoding="utf-8") as fh:
-        for n, row in enumerate(csv.DictReader(fh), start=2):
-            yield n, row
+        yield from enumerate(csv.DictReader(fh), start=2)
 
 
 def source_line(line: int, row: dict) -> str:
@@ -185,8 +184,9 @@ def kernel_correction(S, R, k: int, power: float, kappa: float, min_similarity: 
     import numpy as np
 
     cols = np.arange(S.shape[1])[None, :] < k
-    use = cols & (S >= min_similarity)
-    W = np.where(use, np.clip(S, 0.0, 1.0) ** power, 0.0)
+    use = cols & (S > min_similarity)
+    span = max(1.0 - min_similarity, 1e-9)
+    W = np.where(use, np.clip((np.clip(S, 0.0, 1.0) - min_similarity) / span, 0.0, 1.0) ** power, 0.0)
     den = W.sum(axis=1)
     num = (W * np.clip(R, -clip, clip)).sum(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):

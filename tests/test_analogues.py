@@ -14,12 +14,19 @@ import statistics
 
 import numpy as np
 import pytest
-
 from handbook_pka import HANDBOOK
+
 from saltplan.errors import ParameterError
 from saltplan.ionization import analogues, ionizable_sites
-from saltplan.ionization.analogues import (MEASURED_PROVENANCE, OUTSIDE_NOTE, Fit, ReferenceTable,
-                                           load_fit, shipped_table, site_fingerprints)
+from saltplan.ionization.analogues import (
+    MEASURED_PROVENANCE,
+    OUTSIDE_NOTE,
+    Fit,
+    ReferenceTable,
+    load_fit,
+    shipped_table,
+    site_fingerprints,
+)
 from saltplan.ionization.estimate import estimate_all
 from saltplan.ionization.reference import cv_neighbours, scaffold_folds
 from saltplan.structure import read_structure

@@ -69,7 +69,8 @@ def main(argv=None) -> int:
         "matching": "each measured value in -1 ... 13 -> closest returned site of the kind the "
                     "source reports (strongest acidic -> acid, strongest basic -> base)",
         "residual": "measured - estimate (estimator alone, before the analogue correction)",
-        "scaffold": "Bemis-Murcko framework SMILES; an acyclic molecule is its own group",
+        "scaffold": "calibrate.scaffold_group: Bemis-Murcko framework (ring:...); acyclic "
+                    "molecules by their generic chain skeleton (chain:...)",
         "fingerprint": dict(analogues.FINGERPRINT,
                             definition="Morgan environments (RDKit default invariants) of "
                                        "radius 0..radius of every atom within depth bonds of "

@@ -30,18 +30,12 @@ def usable(rows):
     return [r for r in rows if abs(r["residual"]) <= MAX_RESIDUAL]
 
 
-def scaffold_group(mol, smiles: str) -> str:
-    """Bemis–Murcko framework SMILES of the parent; an acyclic molecule is its own group
-    (it has no ring system to share)."""
-    from rdkit import Chem
-    from rdkit.Chem.Scaffolds import MurckoScaffold
+def scaffold_group(mol, smiles: str = "") -> str:
+    """The cross-validation group of the calibration (:func:`calibrate.scaffold_group`:
+    Bemis–Murcko framework; acyclic molecules by their generic chain skeleton)."""
+    from .calibrate import scaffold_group as group
 
-    try:
-        core = MurckoScaffold.GetScaffoldForMol(mol)
-        text = Chem.MolToSmiles(core) if core.GetNumAtoms() else ""
-    except Exception:
-        text = ""
-    return text or f"acyclic:{smiles}"
+    return group(mol)
 
 
 def read_rows(path: str | Path):

@@ -109,6 +109,7 @@ def _expanded_size(root) -> int | None:
 MAX_YAML_DEPTH = 100
 _QUOTED_OR_COMMENT = re.compile(r'"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|#[^\n]*')
 _BRACKETS = re.compile(r"[\[\]{}]")
+_LEADING_DASHES = re.compile(r"(?:-[ \t]+)*")
 
 
 def _flow_depth(text: str) -> int:
@@ -123,6 +124,28 @@ def _flow_depth(text: str) -> int:
     return deepest
 
 
+def _block_depth(text: str) -> int:
+    """Deepest nesting of block collections, read from indentation and leading dashes.
+
+    Checked before parsing so that the refusal is saltplan's own, whichever PyYAML version
+    (6.0.4 and later refuse deep block nesting themselves, earlier ones recurse) would react.
+    """
+    indents: list[int] = []
+    deepest = 0
+    for line in text.splitlines():
+        stripped = line.lstrip(" ")
+        if not stripped or stripped.startswith("#"):
+            continue
+        indent = len(line) - len(stripped)
+        while indents and indents[-1] > indent:
+            indents.pop()
+        if not indents or indents[-1] < indent:
+            indents.append(indent)
+        dashes = _LEADING_DASHES.match(stripped).group().count("-")   # "- - x": nested lists
+        deepest = max(deepest, len(indents) + dashes)
+    return deepest
+
+
 def load_yaml_text(text: str, origin: str, error=ParameterError) -> Any:
     """Parse YAML safely (no object construction), refusing duplicate keys.
 
@@ -131,7 +154,7 @@ def load_yaml_text(text: str, origin: str, error=ParameterError) -> Any:
     refused before construction. Errors come back as ``error`` (a SaltplanError subclass)
     naming ``origin`` and the line.
     """
-    if _flow_depth(text) > MAX_YAML_DEPTH:
+    if _flow_depth(text) > MAX_YAML_DEPTH or _block_depth(text) > MAX_YAML_DEPTH:
         raise error(f"YAML nested deeper than {MAX_YAML_DEPTH} levels; refused", file=origin)
     loader = _UniqueKeyLoader(text)
     try:
@@ -170,7 +193,7 @@ def load_yaml_path(path: str | Path, error=ParameterError) -> Any:
     return load_yaml_text(text, str(path), error)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def package_yaml(*parts: str) -> Any:
     """Parse a YAML file shipped inside the package (cached)."""
     node = package_file(*parts)

@@ -1,6 +1,7 @@
 """Shared pytest configuration. Fixtures used by one test module live in that module."""
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import pytest
@@ -28,3 +29,18 @@ def cli():
         return runner.invoke(main, [str(a) for a in args], input=input, catch_exceptions=False)
 
     return run
+
+
+@pytest.hookimpl(hookwrapper=True)
+def pytest_runtest_makereport(item, call):
+    """Under CI (``CI`` set, as ``.ci/run`` runs) a skipped test is a failure.
+
+    Skips are for a developer's machine that lacks a service (Chromium, PostgreSQL); CI
+    installs and starts them, so a skip there means a missing install step.
+    """
+    outcome = yield
+    report = outcome.get_result()
+    if report.skipped and not hasattr(report, "wasxfail") and os.environ.get("CI", "") not in ("", "0", "false"):
+        reason = report.longrepr[2] if isinstance(report.longrepr, tuple) else str(report.longrepr)
+        report.outcome = "failed"
+        report.longrepr = f"skipped under CI ({reason}): CI must provide what this test needs"

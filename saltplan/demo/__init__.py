@@ -60,12 +60,16 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
         raise OutputFileError(f"cannot write output: {exc.strerror or exc}", file=str(out)) from None
     try:
         summary = _run_demo(stage)
+        from .._io import published, uninterrupted
+
         moved = []
-        for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
-            target = out / rel
-            target.parent.mkdir(parents=True, exist_ok=True)
-            (stage / rel).replace(target)
-            moved.append(str(target))
+        with uninterrupted():  # a signal waits until the whole demo is in place
+            for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
+                target = out / rel
+                target.parent.mkdir(parents=True, exist_ok=True)
+                (stage / rel).replace(target)
+                published(target)
+                moved.append(str(target))
         summary["written"] = moved
         return summary
     finally:
@@ -73,7 +77,7 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
 
 
 def _run_demo(out: Path) -> dict[str, Any]:
-    from ..plan import plan_salts
+    from ..plan.planner import plan_salts
 
     written: list[str] = []
     summary: dict[str, Any] = {"programme": programme_name(), "compounds": []}
@@ -131,8 +135,9 @@ def _write_plan(plan, folder: Path, screen=None) -> list[Path]:
     try:
         from ..reports import write_plan_report
     except ImportError:  # reports not available: JSON only
-        from .._io import write_text_atomic
         import json
+
+        from .._io import write_text_atomic
 
         return [write_text_atomic(folder / "plan.json", json.dumps(plan.to_dict(), indent=2) + "\n")]
     return list(write_plan_report(plan, folder, screen=screen))
@@ -142,14 +147,14 @@ def _design(plan, c: DemoCompound):
     if plan.verdict["code"] != "salt_candidates":
         return None
     try:
-        from ..screen import design_screen
+        from ..screen.design import design_screen
     except ImportError:
         return None
     return design_screen(plan, api_budget_mg=c.api_budget_mg)
 
 
 def _write_screen(design, folder: Path) -> list[Path]:
-    from ..screen import write_screen
+    from ..screen.output import write_screen
 
     return list(write_screen(design, folder))
 
@@ -157,20 +162,21 @@ def _write_screen(design, folder: Path) -> list[Path]:
 def _batch(out: Path) -> list[str]:
     import pandas as pd
 
-    from ..batch import run_batch
+    from ..batch.run import run_batch
 
     rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
             for c in load_programme()]
     run = run_batch(pd.DataFrame(rows), out / "portfolio.csv", summary=out / "portfolio-summary.html",
-                    dose_column="dose_mg", id_column="id", name_column="name")
+                    dose_column="dose_mg", id_column="id", name_column="name",
+                    source_label="programme.yaml (the invented Heron programme)")
     return [str(p) for p in run.outputs]
 
 
 def _select(design, folder: Path) -> list[str]:
     try:
-        from ..demo_results import make_demo_results
-        from ..select import evaluate_results
-        from ..select_report import write_decision_record
+        from ..reports.decision import write_decision_record
+        from ..select.evaluate import evaluate_results
+        from .results import make_demo_results
     except ImportError:
         return []
     from .._io import write_text_atomic

@@ -82,6 +82,7 @@ def clear_cache() -> None:
 
 _ID_RE = re.compile(r'\bid="([^"]+)"')
 _REF_RE = re.compile(r'(\bid="|"#|url\(#)([^")]+)')
+_HASHED_ID_RE = re.compile(r"^([a-zA-Z]{1,2})[0-9a-f]{10}$")
 
 
 def _figure(width_in: float, height_in: float):
@@ -109,10 +110,17 @@ def _inline(svg: str, prefix: str, label: str) -> str:
     svg = svg[start:]
     svg = re.sub(r"<!--.*?-->", "", svg, flags=re.S)
     svg = re.sub(r"<metadata>.*?</metadata>", "", svg, flags=re.S)
-    ids = set(_ID_RE.findall(svg))        # membership only; the output order is the file's
+    # matplotlib names clip paths and markers by a hash of their float coordinates, which can
+    # differ in the last digit between machines; ids are renamed by order of first appearance
+    # so the bytes depend on the drawing only.
+    ids: dict[str, str] = {}
+    for found in _ID_RE.findall(svg):
+        hashed = _HASHED_ID_RE.match(found)
+        ids.setdefault(found, f"{hashed.group(1)}{len(ids) + 1}" if hashed else found)
 
     def _prefixed(m: re.Match) -> str:
-        return f"{m.group(1)}{prefix}-{m.group(2)}" if m.group(2) in ids else m.group(0)
+        name = ids.get(m.group(2))
+        return f"{m.group(1)}{prefix}-{name}" if name is not None else m.group(0)
 
     svg = _REF_RE.sub(_prefixed, svg)
     svg = svg.replace("<svg ", f'<svg role="img" aria-label="{escape(label, quote=True)}" '

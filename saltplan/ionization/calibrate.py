@@ -47,6 +47,7 @@ class Entry:
     origins: list[str] = field(default_factory=list)
     splits: list[str] = field(default_factory=list)
     scaffold: str = ""
+    mol: object = None       # the standardized parent the records' atom indices refer to
 
     def __post_init__(self):
         n = len(self.measured)
@@ -64,7 +65,7 @@ class Entry:
             return None
         return Entry(self.smiles, self.perc, [self.measured[i] for i in idx],
                      [self.kinds[i] for i in idx], [self.origins[i] for i in idx],
-                     [self.splits[i] for i in idx], self.scaffold)
+                     [self.splits[i] for i in idx], self.scaffold, self.mol)
 
 
 #: "reported_as" of the pka-train compilation -> site kind
@@ -149,7 +150,8 @@ def prepare(rows) -> tuple[list[Entry], list[str]]:
     for smi, (mol, vals) in merged.items():
         vals.sort(key=lambda t: (t[0], t[1] or "", t[2], t[3]))
         entries.append(Entry(smi, perceive(mol), [t[0] for t in vals], [t[1] for t in vals],
-                             [t[2] for t in vals], [t[3] for t in vals], scaffold_group(mol)))
+                             [t[2] for t in vals], [t[3] for t in vals], scaffold_group(mol),
+                             mol))
     return entries, failed
 
 

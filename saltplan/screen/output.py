@@ -6,8 +6,6 @@ so a failure leaves no partial file. Same design → same bytes (the JSON carrie
 """
 from __future__ import annotations
 
-import csv
-import io
 import json
 from pathlib import Path
 from typing import Any
@@ -35,10 +33,9 @@ def _design(design) -> dict[str, Any]:
 
 
 def _csv(rows: list[list[str]]) -> str:
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerows(rows)
-    return buf.getvalue()
+    from .._io import csv_text
+
+    return csv_text(rows)  # spreadsheet-safe cells (no formula injection)
 
 
 def _cell(value, decimals) -> str:
@@ -120,7 +117,7 @@ def write_screen(design, out_dir: str | Path) -> list[Path]:
 def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | None = None,
                      name: str | None = None, dose_mg: float | None = None, measured=None,
                      libraries=None, max_heavy_atoms: int = 150, solvent_library=None,
-                     **options):
+                     inhouse=None, **options):
     """Plan the salts of a structure, design the screen and (optionally) write it.
 
     Parameters
@@ -136,6 +133,9 @@ def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | N
         and used by both the plan and the design).
     solvent_library : path, optional
         Solvent library file replacing the built-in one.
+    inhouse : optional
+        In-house evidence of a ledger for the plan's ranking (see
+        :func:`saltplan.plan.plan_salts`); None: the published prior only.
     **options
         Passed to :func:`saltplan.screen.design_screen`.
 
@@ -149,7 +149,7 @@ def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | N
 
     library = load_counterions(list(libraries) if libraries else None)
     plan = plan_salts(structure, name=name, dose_mg=dose_mg, measured=measured,
-                      libraries=library, max_heavy_atoms=max_heavy_atoms)
+                      libraries=library, max_heavy_atoms=max_heavy_atoms, inhouse=inhouse)
     design = design_screen(plan, api_budget_mg, library=library,
                            solvent_library=solvent_library, **options)
     written = write_screen(design, out_dir) if out_dir is not None else []

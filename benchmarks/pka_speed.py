@@ -8,7 +8,11 @@ Prints, on one core (single process, single thread):
   (``saltplan.structure.read_structure``) + a ~70-pattern SMARTS catalogue (the estimator's
   own compiled patterns, ``GetSubstructMatches`` on each), and the ratio full / floor;
 * tracemalloc peak for the same N molecules processed 1, 10 and 20 times (memory should stay
-  flat; a small rise that saturates is RDKit / interpreter caches, not accumulation).
+  flat; a small rise that saturates is RDKit / interpreter caches, not accumulation);
+* start-up of the ``saltplan sites`` command (wall time of a fresh process, best of
+  ``--repeat`` x 3): ``saltplan sites --help`` (imports only; the measured-site reference
+  table is loaded lazily, on the first estimate) and ``saltplan sites CCN`` (start-up plus
+  loading the table and one estimate), beside a bare ``python -c pass``.
 
 Molecules: the distinct SMILES of ../shared/data/pka-dev/literature_pka.csv when present,
 else the handbook series of tests/handbook_pka.py.
@@ -19,6 +23,8 @@ from __future__ import annotations
 
 import argparse
 import csv
+import shutil
+import subprocess
 import sys
 import time
 import tracemalloc
@@ -113,7 +119,27 @@ def main(argv=None):
         peaks.append(peak)
         print(f"  tracemalloc peak, {count:5d} molecules  {peak / 1024:8.0f} KiB")
     print(f"  peak ratio 10N / N               {peaks[1] / peaks[0]:8.2f}   (20N / 10N {peaks[2] / peaks[1]:.2f})")
+    startup(args.repeat * 3)
     return 0
+
+
+def startup(repeat: int) -> None:
+    """Wall time of fresh ``saltplan sites`` processes (best of ``repeat``)."""
+    exe = shutil.which("saltplan")
+    cli = [exe] if exe else [sys.executable, "-m", "saltplan"]
+
+    def wall(cmd):
+        def run():
+            subprocess.run(cmd, check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        return best_of(run, repeat)
+
+    t_py = wall([sys.executable, "-c", "pass"])
+    t_help = wall(cli + ["sites", "--help"])
+    t_one = wall(cli + ["sites", "CCN"])
+    print(f"start-up, fresh process, best of {repeat} (target < 0.5 s):")
+    print(f"  python -c pass                   {t_py:8.3f} s")
+    print(f"  saltplan sites --help            {t_help:8.3f} s   (imports; reference table not loaded)")
+    print(f"  saltplan sites CCN               {t_one:8.3f} s   (+ reference table + one estimate)")
 
 
 if __name__ == "__main__":

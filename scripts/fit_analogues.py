@@ -41,49 +41,7 @@ GRID = {"k": (3, 5, 8, 12), "power": (1, 2, 3), "kappa": (0.5, 1.0, 2.0, 4.0),
 #: guard: with the correction applied, the textbook series (tests/handbook_pka.py) must
 #: keep MAE <= this; kernels are ranked by CV MAE and the first that passes is taken
 TEXTBOOK_GUARD = 0.18
-SIM_EDGES = (0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9)
-TARGET = 0.68
 MIN_CLASS = 50          # classes checked for coverage
-MIN_CLASS_FACTOR = 30   # classes that get a factor of their own
-
-
-def q68(x):
-    import numpy as np
-
-    return float(np.quantile(x, TARGET)) if len(x) else 1.0
-
-
-def fit_sigma(z, nearest, cls, edges=SIM_EDGES, rounds=3):
-    """Similarity-bin factors (non-increasing in similarity) and class factors so that
-    ``z / (f_sim * f_class)`` has its 68th percentile at 1, overall, per bin and per class."""
-    import numpy as np
-
-    z = np.asarray(z, float)
-    bins = np.searchsorted(np.asarray(edges), nearest, side="right")
-    nb = len(edges) + 1
-    fsim = np.ones(nb)
-    fcls: dict[str, float] = {}
-    keys = sorted(set(cls))
-    cls = np.asarray(cls)
-    for _ in range(rounds):
-        fc = np.array([fcls.get(c, 1.0) for c in cls])
-        zz = z / fc
-        overall = q68(zz)
-        raw = np.array([q68(zz[bins == b]) if np.sum(bins == b) >= 30 else np.nan for b in range(nb)])
-        # empty / thin bins take the neighbour's value; then non-increasing with similarity
-        for b in range(nb):
-            if np.isnan(raw[b]):
-                raw[b] = raw[b - 1] if b and not np.isnan(raw[b - 1]) else overall
-        for b in range(nb - 2, -1, -1):
-            raw[b] = max(raw[b], raw[b + 1])
-        fsim = raw
-        zs = z / fsim[bins]
-        fcls = {}
-        for c in keys:
-            m = cls == c
-            if m.sum() >= MIN_CLASS_FACTOR:
-                fcls[c] = q68(zs[m])
-    return fsim, fcls
 
 
 def textbook_mae(fit) -> float:
@@ -116,7 +74,14 @@ def main(argv=None) -> int:
     import yaml
 
     from saltplan.ionization import analogues, catalogue
-    from saltplan.ionization.reference import cv_neighbours, kernel_correction, reference_rows, scaffold_folds
+    from saltplan.ionization.reference import (
+        SIM_EDGES,
+        cv_neighbours,
+        fit_sigma,
+        kernel_correction,
+        reference_rows,
+        scaffold_folds,
+    )
 
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--data", type=Path, default=DATA)

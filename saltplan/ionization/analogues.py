@@ -155,7 +155,8 @@ class Analogue:
     def step(self, rank: int) -> Step:
         return Step(f"measured analogue {rank}", 0.0,
                     f"{self.smiles} (atom {self.atom}): measured {self.measured:.2f}, estimator "
-                    f"residual {self.residual:+.2f}, similarity {self.similarity:.2f}",
+                    f"residual (measured - estimate) {self.residual:+.2f}, similarity "
+                    f"{self.similarity:.2f}",
                     f"{SOURCE_SHORT}, measured_pka.csv {self.source}")
 
 

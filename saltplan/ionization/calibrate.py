@@ -1,6 +1,6 @@
 """Least-squares calibration of the estimator's parameters against measured pKa values.
 
-Used by ``scripts/fit_pka.py`` (writes ``data/fitted_pka_dev.yaml``) and by
+Used by ``scripts/fit_pka.py`` (writes ``data/fitted_pka.yaml``) and by
 ``benchmarks/pka_accuracy.py`` (5-fold cross-validation split by molecule).
 
 Method: robust (Huber) Levenberg-Marquardt on the residuals "closest estimated site minus
@@ -47,6 +47,7 @@ class Entry:
     origins: list[str] = field(default_factory=list)
     splits: list[str] = field(default_factory=list)
     scaffold: str = ""
+    mol: object = None       # the standardized parent the records' atom indices refer to
 
     def __post_init__(self):
         n = len(self.measured)
@@ -64,7 +65,7 @@ class Entry:
             return None
         return Entry(self.smiles, self.perc, [self.measured[i] for i in idx],
                      [self.kinds[i] for i in idx], [self.origins[i] for i in idx],
-                     [self.splits[i] for i in idx], self.scaffold)
+                     [self.splits[i] for i in idx], self.scaffold, self.mol)
 
 
 #: "reported_as" of the pka-train compilation -> site kind
@@ -149,7 +150,8 @@ def prepare(rows) -> tuple[list[Entry], list[str]]:
     for smi, (mol, vals) in merged.items():
         vals.sort(key=lambda t: (t[0], t[1] or "", t[2], t[3]))
         entries.append(Entry(smi, perceive(mol), [t[0] for t in vals], [t[1] for t in vals],
-                             [t[2] for t in vals], [t[3] for t in vals], scaffold_group(mol)))
+                             [t[2] for t in vals], [t[3] for t in vals], scaffold_group(mol),
+                             mol))
     return entries, failed
 
 
@@ -324,9 +326,33 @@ def choose_parameters(entries: list[Entry], prior: dict[str, float]) -> list[str
     return keys
 
 
+#: classes whose parent value is the measured value of the unsubstituted parent compound
+#: (handbook anchors: phenol 9.99, benzoic acid 4.20, pyridine 5.23 ...): with thousands of
+#: substituted and fused molecules in the calibration data, a loose prior would let them drag
+#: the parent to absorb what the substituent model misses, so these parents stay firm
+ANCHORED = {"phenol", "carboxylic_aromatic", "carboxylic_aliphatic", "pyridine", "imidazole",
+            "benzimidazole", "quinoline", "isoquinoline", "aniline_primary", "aniline_secondary",
+            "aniline_tertiary", "amine_primary", "amine_secondary", "amine_tertiary",
+            "thiophenol", "thiol", "alcohol", "aminopyridine_2", "aminopyridine_4", "pyrazole",
+            "thiazole", "tetrazole", "guanidine", "amidine", "aminoquinoline_4",
+            # coverage classes whose parent is likewise a named parent compound's measured
+            # value (acetone oxime 12.4, nitroethane 8.6, thioacetamide, imidazole N-H 14.5,
+            # pyrazole N-H, thiouracil N-H, N,N-diethylhydroxylamine, tetronic acid,
+            # methylnitramine; sources in groups.yaml)
+            "oxime", "nitroalkane_ch", "thioamide_nh", "imidazole_nh", "pyrazole_nh",
+            "aromatic_thione_nh", "hydroxylamine", "dione_13_ring5", "nitramine_nh"}
+ANCHOR_SCALE = 0.04
+#: Hammett reaction constants: relative prior scale (well established from textbook series)
+HAMMETT_RHO_SCALE = 0.06
+
+
 def _scale(key: str, prior: float) -> float:
     fam = _family(key)
     group = catalogue.group_index().get(key.partition(":")[2])
+    if fam == "pka0" and group is not None and group.id in ANCHORED:
+        return ANCHOR_SCALE
+    if fam in ("rho", "rhot") and group is not None and group.id in ANCHORED and group.model == "taft":
+        return max(0.04 * abs(prior), 0.05)
     if fam == "pka0" and group is not None:
         # a parent value is as firm as its class: well-established parents (phenol,
         # benzoic acid, pyridine) barely move, class values with a wide range move more
@@ -334,8 +360,10 @@ def _scale(key: str, prior: float) -> float:
     if fam == "rhot":
         return max(SCALES["rho"] * abs(prior), 0.2)
     if fam == "rho":
+        if group is not None and group.model == "hammett" and group.id in ANCHORED:
+            return max(0.03 * abs(prior), 0.05)   # textbook series define these
         if group is not None and group.model == "hammett":
-            return max(0.12 * abs(prior), 0.1)   # Hammett rho are well established
+            return max(HAMMETT_RHO_SCALE * abs(prior), 0.08)   # well established
         return max(SCALES["rho"] * abs(prior), 0.2)
     if key in TIGHT:
         return TIGHT[key]
@@ -344,6 +372,11 @@ def _scale(key: str, prior: float) -> float:
         # determine them far better than single measured values of drugs do
         return max(SCALES["int"] * abs(prior), 0.05)
     return SCALES.get(fam, 0.5)
+
+
+def _same_kind(entry: Entry, kind: str | None) -> list[int]:
+    recs = entry.perc.records
+    return [j for j, r in enumerate(recs) if kind is None or r.group.kind == kind]
 
 
 def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[str] | None = None,
@@ -384,7 +417,17 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
 
     def entry_res(e, asg, p):
         values = predict_all(e, p)
-        return [0.0 if i is None else values[i] - v for (v, i, _) in asg]
+        # the macroscopic sequence hands values to sites in order, so two sites of one kind
+        # swap values when their order flips (and symmetry-equivalent sites on rounding):
+        # score the closest site of the right kind, which is continuous in the parameters
+        out = []
+        for (v, i, _), kind in zip(asg, e.kinds):
+            if i is None:
+                out.append(0.0)
+                continue
+            cands = _same_kind(e, kind)
+            out.append(min((values[j] - v for j in cands), key=abs))
+        return out
 
     def residuals(theta, assignment):
         p = params_of(theta)

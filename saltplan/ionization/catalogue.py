@@ -13,7 +13,7 @@ from ..errors import ParameterError
 _DATA = ("ionization", "data")
 _KINDS = ("acid", "base")
 _MODELS = ("hammett", "taft", "fixed")
-FITTED_FILE = "fitted_pka_dev.yaml"
+FITTED_FILE = "fitted_pka.yaml"
 
 
 @dataclass(frozen=True)
@@ -195,9 +195,14 @@ def is_fitted(key: str) -> bool:
 def class_uncertainty() -> dict[str, float]:
     """Per-group uncertainty: calibration RMSE where fitted, else the catalogue prior."""
     out = {g.id: g.uncertainty for g in groups()}
-    for gid, rmse in (fitted_table().get("class_rmse") or {}).items():
+    fitted = fitted_table()
+    for gid, rmse in (fitted.get("class_rmse") or {}).items():
         if gid in out:
             out[gid] = max(float(rmse), 0.2)
+    # 1-sigma from the scaffold-grouped cross-validation (scripts/fit_pka.py)
+    for gid, row in (fitted.get("class_sigma") or {}).items():
+        if gid in out:
+            out[gid] = max(float(row["sigma"]), 0.2)
     return out
 
 
@@ -205,4 +210,6 @@ def fitted_source() -> str:
     f = fitted_table()
     if not f:
         return ""
-    return f"fitted to {f.get('data_set', 'pka-dev')} ({f.get('date', '')})"
+    sets = f.get("data_sets") or [f.get("data_set", "pka-dev")]
+    names = "; ".join(str(x).split(" (")[0].split(",")[0] for x in sets)
+    return f"fitted to {names} ({f.get('date', '')})"

@@ -186,3 +186,50 @@ def kernel_correction(S, R, k: int, power: float, kappa: float, min_similarity: 
     with np.errstate(invalid="ignore", divide="ignore"):
         c = np.where(den > 0, num / (kappa + den), 0.0)
     return c, den
+
+
+# --------------------------------------------------------------------------- uncertainty factors
+#: nearest-analogue similarity bins of the uncertainty factors
+SIM_EDGES = (0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9)
+#: share of absolute errors the 1-sigma band should hold (normal distribution: 68.3 %)
+TARGET = 0.68
+MIN_CLASS_FACTOR = 30   # classes (group/kind) with at least this many values get a factor
+
+
+def q68(x):
+    import numpy as np
+
+    return float(np.quantile(x, TARGET)) if len(x) else 1.0
+
+
+def fit_sigma(z, nearest, cls, edges=SIM_EDGES, rounds=3):
+    """Similarity-bin factors (non-increasing in similarity) and class factors so that
+    ``z / (f_sim * f_class)`` has its 68th percentile at 1, overall, per bin and per class."""
+    import numpy as np
+
+    z = np.asarray(z, float)
+    bins = np.searchsorted(np.asarray(edges), nearest, side="right")
+    nb = len(edges) + 1
+    fsim = np.ones(nb)
+    fcls: dict[str, float] = {}
+    keys = sorted(set(cls))
+    cls = np.asarray(cls)
+    for _ in range(rounds):
+        fc = np.array([fcls.get(c, 1.0) for c in cls])
+        zz = z / fc
+        overall = q68(zz)
+        raw = np.array([q68(zz[bins == b]) if np.sum(bins == b) >= 30 else np.nan for b in range(nb)])
+        # empty / thin bins take the neighbour's value; then non-increasing with similarity
+        for b in range(nb):
+            if np.isnan(raw[b]):
+                raw[b] = raw[b - 1] if b and not np.isnan(raw[b - 1]) else overall
+        for b in range(nb - 2, -1, -1):
+            raw[b] = max(raw[b], raw[b + 1])
+        fsim = raw
+        zs = z / fsim[bins]
+        fcls = {}
+        for c in keys:
+            m = cls == c
+            if m.sum() >= MIN_CLASS_FACTOR:
+                fcls[c] = q68(zs[m])
+    return fsim, fcls

@@ -3,7 +3,15 @@ from __future__ import annotations
 
 import click
 
-from ._common import common_options, echo_json, max_atoms_option, structure_argument, table
+from ._common import (
+    common_options,
+    echo_json,
+    format_options,
+    max_atoms_option,
+    need_pdf_tool,
+    structure_argument,
+    table,
+)
 
 MODE_CHOICES = ("slurry", "cooling", "evaporation", "antisolvent")
 
@@ -72,12 +80,14 @@ def _parse_budgets(values):
               help="Measured pKa: 8.1, base=8.1, acid=4.2, ATOM=VALUE or GROUP=VALUE (repeatable).")
 @click.option("--library", "libraries", multiple=True, type=click.Path(exists=True),
               help="Extra counterion library file (repeatable); adds or overrides by id.")
+@format_options("Without it the screen files only; with it also report.FMT (plan and screen) "
+                "and plan.json.")
 @max_atoms_option
 @common_options
 def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents, n_solvents,
            modes, api_mg, stock_molarity, excess, liquid_dosing, stock_solvent, layout,
            no_controls, include_risky, counterion_budgets, solvent_library, name, dose_mg,
-           pkas, libraries, max_atoms, as_json):
+           pkas, libraries, formats, paper, max_atoms, as_json):
     """Design the salt screen of a structure and write its files to --out.
 
     Counterions come from the plan (top N or --counterion), solvents are chosen to span
@@ -87,6 +97,7 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
     """
     from ..screen.output import screen_structure
 
+    need_pdf_tool(formats)
     design, written = screen_structure(
         structure, api_budget_mg, out_dir=out_dir, name=name, dose_mg=dose_mg,
         measured=_parse_pka(pkas), libraries=libraries or None, max_heavy_atoms=max_atoms,
@@ -96,6 +107,11 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
         include_risky=include_risky, controls=not no_controls, liquid_dosing=liquid_dosing,
         stock_solvent=stock_solvent, counterion_budget_mg=_parse_budgets(counterion_budgets),
         layout=layout)
+    if formats:
+        from ..reports import write_plan_report
+
+        written = list(written) + write_plan_report(None, out_dir, screen=design,
+                                                    formats=formats, paper=paper)
     if as_json:
         echo_json(design.to_dict())
         return

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import common_options, echo_json, table
+from ._common import common_options, echo_json, format_options, need_pdf_tool, table
 
 
 @click.command()
@@ -16,8 +16,9 @@ from ._common import common_options, echo_json, table
                    "saltplan/data/selection_thresholds.yaml).")
 @click.option("--dose-mg", type=click.FloatRange(min=0, min_open=True),
               help="Highest single dose [mg] for the solubility criterion (default: the plan's).")
+@format_options("Default: html and md.")
 @common_options
-def select(design_dir, results, out_dir, thresholds, dose_mg, as_json):
+def select(design_dir, results, out_dir, thresholds, dose_mg, formats, paper, as_json):
     """Evaluate screen RESULTS.csv against the design in DESIGN_DIR and pick a lead form.
 
     Tier 1 crystalline hits with the intended stoichiometry; tier 2 melting onset,
@@ -27,7 +28,9 @@ def select(design_dir, results, out_dir, thresholds, dose_mg, as_json):
     """
     from ..reports.decision import select_and_record
 
-    selection, written = select_and_record(design_dir, results, out_dir, thresholds, dose_mg)
+    need_pdf_tool(formats)
+    selection, written = select_and_record(design_dir, results, out_dir, thresholds, dose_mg,
+                                           formats or None, paper)
     if as_json:
         echo_json(selection.to_dict())
         return

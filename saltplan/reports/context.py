@@ -387,6 +387,7 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
         chart_list.append({
             "id": "chart-dpka", "title": "ΔpKa per counterion against the category bands",
             "svg": charts.delta_pka_chart(rows, bands_of(th), plan["inputs"].get("min_delta_pka")),
+            "draw": (charts.delta_pka_chart, (rows, bands_of(th), plan["inputs"].get("min_delta_pka"))),
             "note": scope + "Filled bars: shortlisted; hatched: excluded. Error bars: "
                     "± the estimate uncertainty of the API site of the limiting proton "
                     "transfer (none when that site was measured). "
@@ -394,10 +395,8 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
     if graphics and sites:
         chart_list.append({
             "id": "chart-ionized", "title": "Fraction ionized against pH, per site",
-            "svg": charts.ionization_chart([{"kind": s["kind"], "pka": s["pka"],
-                                             "label": f"{s['label']} {s['kind']} "
-                                                      f"{s['drawing_label']}"}
-                                            for s in sites]),
+            "svg": charts.ionization_chart(_ion_rows(sites)),
+            "draw": (charts.ionization_chart, (_ion_rows(sites),)),
             "note": "Henderson–Hasselbalch for each site alone (site interactions ignored); "
                     "base pKa = pKa of the conjugate acid. Grey lines: pH 1.2 and 6.8 "
                     "(common dissolution media)."})
@@ -406,6 +405,8 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
             "id": "chart-solubility", "title": "pH–solubility profile (estimate)",
             "svg": charts.solubility_chart(sol["points"], sol["ph_max"], sol["s0"], sol["unit"],
                                            free=sol["free_points"]),
+            "draw": (charts.solubility_chart, (sol["points"], sol["ph_max"], sol["s0"],
+                                               sol["unit"]), {"free": sol["free_points"]}),
             "note": "Henderson–Hasselbalch with a salt plateau (pHmax from S₀ and the salt "
                     "solubility, see Inputs and assumptions); intrinsic solubility from an "
                     "estimate, about ±1 log unit." + (f" Sites used: {sol['profile_sites']}."
@@ -433,6 +434,11 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
     ctx["rationale_sections"] = rationale.sections(ctx)
     ctx["rationale"] = [p for sec in ctx["rationale_sections"] for p in sec["paragraphs"]]
     return ctx
+
+
+def _ion_rows(sites: list[dict]) -> list[dict]:
+    return [{"kind": s["kind"], "pka": s["pka"],
+             "label": f"{s['label']} {s['kind']} {s['drawing_label']}"} for s in sites]
 
 
 DEFERENCE = ("Final choices defer to the pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, Q6A and "

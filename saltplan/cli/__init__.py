@@ -25,6 +25,7 @@ COMMANDS = {
     "batch": "saltplan.cli.batch:batch",
     "select": "saltplan.cli.select:select",
     "demo": "saltplan.cli.demo:demo",
+    "ledger": "saltplan.cli.ledger:ledger",
 }
 
 

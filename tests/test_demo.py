@@ -26,6 +26,21 @@ def _normalize(text: str, strip_svg: bool) -> str:
     return text
 
 
+def _as_text(path: Path) -> str:
+    """A file as comparable text: Word files by their document XML, PDFs by their text."""
+    if path.suffix == ".docx":
+        import zipfile
+
+        with zipfile.ZipFile(path) as z:
+            return z.read("word/document.xml").decode("utf-8")
+    if path.suffix == ".pdf":
+        import pypdf
+
+        reader = pypdf.PdfReader(path)
+        return "".join("".join(p.extract_text().split()) for p in reader.pages)
+    return path.read_text(encoding="utf-8")
+
+
 def _ledger_db(path: Path) -> bool:
     """The demo's SQLite ledger (binary, not committed: .gitignore) is checked below."""
     return path.name.startswith("ledger.sqlite")
@@ -70,8 +85,7 @@ def test_committed_reports_match_the_code(regenerated):
     for rel in new:
         if rel == "environment.json":
             continue
-        a = (out / rel).read_text(encoding="utf-8")
-        b = (REPORTS / rel).read_text(encoding="utf-8")
+        a, b = _as_text(out / rel), _as_text(REPORTS / rel)
         if _normalize(a, strip_svg) != _normalize(b, strip_svg):
             stale.append(rel)
         elif strip_svg:

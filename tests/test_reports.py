@@ -74,15 +74,17 @@ def md(plan, screen):
 
 # --------------------------------------------------------------------------- content & order
 def test_html_sections_in_decision_first_order(html):
-    order = ["sp-verdict", "sp-structure", "sp-inputs", "sp-sites", "sp-candidates",
-             "sp-charts", "sp-screen", "sp-rationale", "sp-cautions", "sp-references",
-             "sp-provenance"]
+    # decision -> rationale -> sites and how each pKa was obtained -> candidates -> screen
+    # -> appendices (inputs and settings, hashes and provenance, references)
+    order = ["sp-verdict", "sp-rationale", "sp-why", "sp-risks", "sp-confirm", "sp-cautions",
+             "sp-structure", "sp-sites", "sp-candidates", "sp-charts", "sp-screen",
+             "sp-inputs", "sp-provenance", "sp-references"]
     positions = [html.index(f'id="{s}"') for s in order]
     assert positions == sorted(positions)
 
 
 def test_html_verdict_shows_top_three_with_stoichiometry_and_caveat(html, plan):
-    verdict = html[html.index('id="sp-verdict"'):html.index('id="sp-structure"')]
+    verdict = html[html.index('id="sp-verdict"'):html.index('id="sp-rationale"')]
     for c in plan["candidates"][:3]:
         assert c["counterion"] in verdict
         assert f"{c['delta_pka']:.2f}" in verdict
@@ -91,7 +93,7 @@ def test_html_verdict_shows_top_three_with_stoichiometry_and_caveat(html, plan):
 
 
 def test_html_every_site_pka_carries_provenance(html, plan):
-    sites = html[html.index('id="sp-structure"'):html.index('id="sp-inputs"')]
+    sites = html[html.index('id="sp-structure"'):html.index('id="sp-sites"')]
     assert "sp-prov-estimated" in sites and "sp-prov-measured" in sites
     steps = html[html.index('id="sp-sites"'):html.index('id="sp-candidates"')]
     for s in plan["sites"]:
@@ -99,12 +101,15 @@ def test_html_every_site_pka_carries_provenance(html, plan):
             assert step["source"] in steps
 
 
-def test_html_transfer_table_names_both_pka_sources(html, plan):
-    block = html[html.index("Where each ΔpKa comes from"):html.index('id="sp-charts"')]
+def test_html_counterion_table_names_each_pka_source_once(html, plan):
+    block = html[html.index("Counterions: pKa values used"):html.index('id="sp-charts"')]
     for c in plan["candidates"]:
         for t in c["transfers"]:
             assert t["counterion_pka_source"] in block
-    assert "sp-prov-estimated" in block and "sp-prov-measured" in block
+            assert block.count(f"<td>{t['counterion_pka_source']}</td>") == 1
+    # the API side of each ΔpKa is the site's pKa, with its provenance in the sites table
+    sites = html[html.index('id="sp-structure"'):html.index('id="sp-sites"')]
+    assert "sp-prov-estimated" in sites and "sp-prov-measured" in sites
 
 
 def test_html_contains_charts_plate_and_cautions(html):
@@ -468,7 +473,7 @@ def test_real_plan_numbers_are_traceable(real, real_html):
 
 def test_real_plan_verdict_first(real, real_html):
     plan = real[0].to_dict()
-    verdict = real_html[real_html.index('id="sp-verdict"'):real_html.index('id="sp-structure"')]
+    verdict = real_html[real_html.index('id="sp-verdict"'):real_html.index('id="sp-rationale"')]
     from markupsafe import escape
 
     assert escape(plan["verdict"]["text"]) in verdict
@@ -538,7 +543,7 @@ def test_write_report_objects(tmp_path, real):
 def test_rationale_explains_choices_and_exclusions(html, plan, screen):
     from markupsafe import escape
 
-    text = html[html.index('id="sp-rationale"'):html.index('id="sp-cautions"')]
+    text = html[html.index('id="sp-rationale"'):html.index('id="sp-structure"')]
     for c in plan["candidates"][:3]:
         assert escape(c["counterion"]) in text and f"ΔpKa {c['delta_pka']:.2f}" in text
     for c in plan["excluded"]:

@@ -24,6 +24,44 @@ def common_options(func):
     return func
 
 
+REPORT_FORMATS = ("html", "md", "docx", "pdf")   # = saltplan.reports.FORMATS
+
+
+def format_options(default_help: str):
+    """Add ``--format`` (repeatable or comma-separated: html, md, docx, pdf) and ``--paper``."""
+    def deco(func):
+        func = click.option("--paper", type=click.Choice(["a4", "letter"]), default="a4",
+                            show_default=True, help="Page size of the Word and PDF files.")(func)
+        func = click.option("--format", "formats", multiple=True, metavar="FMT",
+                            callback=_check_formats,
+                            help="Report format: html, md, docx (Word) or pdf (printed by "
+                                 "headless Chromium); repeatable or comma-separated. "
+                                 + default_help)(func)
+        return func
+    return deco
+
+
+def _check_formats(ctx, param, value):
+    out = []
+    for v in value or ():
+        for part in str(v).split(","):
+            part = part.strip().lower()
+            part = {"markdown": "md", "word": "docx"}.get(part, part)
+            if part not in REPORT_FORMATS:
+                raise click.BadParameter(f"'{part}' is not one of {', '.join(REPORT_FORMATS)}")
+            out.append(part)
+    return tuple(f for f in REPORT_FORMATS if f in out)
+
+
+def need_pdf_tool(formats) -> None:
+    """Fail before any work or output when PDF is asked for and Chromium is missing."""
+    if "pdf" in (formats or ()):
+        from ..reports.pdf import ChromiumMissing, find_chromium, missing_message
+
+        if find_chromium() is None:
+            raise ChromiumMissing(missing_message())
+
+
 def echo_json(data) -> None:
     click.echo(dumps(data))
 

@@ -3,7 +3,16 @@ from __future__ import annotations
 
 import click
 
-from ._common import common_options, dumps, echo_json, max_atoms_option, structure_argument, table
+from ._common import (
+    common_options,
+    dumps,
+    echo_json,
+    format_options,
+    max_atoms_option,
+    need_pdf_tool,
+    structure_argument,
+    table,
+)
 from ._ledger import CommandLedger, ledger_options
 
 _ROUTES = ("oral", "parenteral", "inhalation", "topical", "other")   # = saltplan.plan.ROUTES
@@ -46,11 +55,12 @@ def _parse_measured(values):
               help="Rows of the ranked table.")
 @click.option("--out", "out_dir", type=click.Path(file_okay=False),
               help="Write plan.json (and the reports, when available) into this folder.")
+@format_options("Default with --out: html and md.")
 @max_atoms_option
 @ledger_options
 @common_options
 def plan(structure, name, dose_mg, route, pkas, libraries, weights, min_delta_pka,
-         melting_point, s0, salt_solubility, top, out_dir, max_atoms, ledger_url, record,
+         melting_point, s0, salt_solubility, top, out_dir, formats, paper, max_atoms, ledger_url, record,
          no_learn, author, as_json):
     """Rank counterions and stoichiometries for a salt of SMILES|FILE, with reasons.
 
@@ -60,6 +70,9 @@ def plan(structure, name, dose_mg, route, pkas, libraries, weights, min_delta_pk
     """
     from ..plan.planner import plan_salts
 
+    if formats and not out_dir:
+        raise click.UsageError("--format needs --out (the folder to write the reports into)")
+    need_pdf_tool(formats)
     with CommandLedger(ledger_url, record, no_learn, author) as led:
         result = plan_salts(structure, name=name, dose_mg=dose_mg, route=route,
                             measured=_parse_measured(pkas), libraries=list(libraries) or None,
@@ -68,7 +81,7 @@ def plan(structure, name, dose_mg, route, pkas, libraries, weights, min_delta_pk
                             salt_solubility_mg_ml=salt_solubility, max_heavy_atoms=max_atoms,
                             inhouse=led.inhouse)
         data = result.to_dict()
-        written = _write(result, data, out_dir) if out_dir else []
+        written = _write(result, data, out_dir, formats, paper) if out_dir else []
         led.record(lambda ledger: ledger.record_plan(data))
     if as_json:
         echo_json(data)
@@ -78,7 +91,7 @@ def plan(structure, name, dose_mg, route, pkas, libraries, weights, min_delta_pk
         click.echo(f"wrote {path}", err=True)
 
 
-def _write(result, data, out_dir):
+def _write(result, data, out_dir, formats=(), paper="a4"):
     from .._io import write_text_atomic
 
     try:
@@ -91,7 +104,8 @@ def _write(result, data, out_dir):
 
     written = []
     if write_plan_report is not None:
-        written = [Path(p) for p in write_plan_report(result, out_dir)]
+        written = [Path(p) for p in write_plan_report(result, out_dir, formats=formats or None,
+                                                      paper=paper)]
     if not any(p.name == "plan.json" for p in written):
         written.append(write_text_atomic(Path(out_dir) / "plan.json", dumps(data) + "\n"))
     return written

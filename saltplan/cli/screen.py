@@ -3,7 +3,15 @@ from __future__ import annotations
 
 import click
 
-from ._common import common_options, echo_json, max_atoms_option, structure_argument, table
+from ._common import (
+    common_options,
+    echo_json,
+    format_options,
+    max_atoms_option,
+    need_pdf_tool,
+    structure_argument,
+    table,
+)
 from ._ledger import CommandLedger, ledger_options
 
 MODE_CHOICES = ("slurry", "cooling", "evaporation", "antisolvent")
@@ -73,13 +81,16 @@ def _parse_budgets(values):
               help="Measured pKa: 8.1, base=8.1, acid=4.2, ATOM=VALUE or GROUP=VALUE (repeatable).")
 @click.option("--library", "libraries", multiple=True, type=click.Path(exists=True),
               help="Extra counterion library file (repeatable); adds or overrides by id.")
+@format_options("Without it the screen files only; with it also report.FMT (plan and screen) "
+                "and plan.json.")
 @max_atoms_option
 @ledger_options
 @common_options
 def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents, n_solvents,
            modes, api_mg, stock_molarity, excess, liquid_dosing, stock_solvent, layout,
            no_controls, include_risky, counterion_budgets, solvent_library, name, dose_mg,
-           pkas, libraries, max_atoms, ledger_url, record, no_learn, author, as_json):
+           pkas, libraries, formats, paper, max_atoms, ledger_url, record, no_learn, author,
+           as_json):
     """Design the salt screen of a structure and write its files to --out.
 
     Counterions come from the plan (top N or --counterion), solvents are chosen to span
@@ -88,6 +99,7 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
     or over 96 wells is an error that says what to cut. With a ledger the plan's ranking
     learns from it (--no-learn: not); --record stores the design and its plan there.
     """
+    need_pdf_tool(formats)
     with CommandLedger(ledger_url, record, no_learn, author) as led:
         design, written = _design(led, structure, api_budget_mg, out_dir, top, counterions,
                                   scale, solvents, n_solvents, modes, api_mg, stock_molarity,
@@ -95,6 +107,11 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
                                   include_risky, counterion_budgets, solvent_library, name,
                                   dose_mg, pkas, libraries, max_atoms)
         led.record(lambda ledger: ledger.record_screen(design))
+    if formats:
+        from ..reports import write_plan_report
+
+        written = list(written) + write_plan_report(None, out_dir, screen=design,
+                                                    formats=formats, paper=paper)
     _show(design, written, as_json)
 
 

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import common_options, echo_json, table
+from ._common import common_options, echo_json, format_options, need_pdf_tool, table
 from ._ledger import CommandLedger, ledger_options
 
 
@@ -32,10 +32,11 @@ def _record(design_dir, results, selection, ledger_url, author) -> None:
                    "saltplan/data/selection_thresholds.yaml).")
 @click.option("--dose-mg", type=click.FloatRange(min=0, min_open=True),
               help="Highest single dose [mg] for the solubility criterion (default: the plan's).")
+@format_options("Default: html and md.")
 @ledger_options_no_learn
 @common_options
-def select(design_dir, results, out_dir, thresholds, dose_mg, ledger_url, record, author,
-           as_json):
+def select(design_dir, results, out_dir, thresholds, dose_mg, formats, paper, ledger_url, record,
+           author, as_json):
     """Evaluate screen RESULTS.csv against the design in DESIGN_DIR and pick a lead form.
 
     Tier 1 crystalline hits with the intended stoichiometry; tier 2 melting onset,
@@ -46,7 +47,9 @@ def select(design_dir, results, out_dir, thresholds, dose_mg, ledger_url, record
     """
     from ..reports.decision import select_and_record
 
-    selection, written = select_and_record(design_dir, results, out_dir, thresholds, dose_mg)
+    need_pdf_tool(formats)
+    selection, written = select_and_record(design_dir, results, out_dir, thresholds, dose_mg,
+                                           formats or None, paper)
     if record:
         _record(design_dir, results, selection, ledger_url, author)
     if as_json:

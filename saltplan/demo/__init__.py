@@ -151,7 +151,14 @@ def _write_plan(plan, folder: Path, screen=None) -> list[Path]:
         from .._io import write_text_atomic
 
         return [write_text_atomic(folder / "plan.json", json.dumps(plan.to_dict(), indent=2) + "\n")]
-    return list(write_plan_report(plan, folder, screen=screen))
+    return list(write_plan_report(plan, folder, screen=screen, formats=_formats()))
+
+
+def _formats() -> tuple[str, ...]:
+    """Every report format; PDF only where Chromium is installed (it prints the PDF)."""
+    from ..reports.pdf import find_chromium
+
+    return ("html", "md", "docx") + (("pdf",) if find_chromium() else ())
 
 
 def _design(plan, c: DemoCompound):
@@ -194,7 +201,8 @@ def _select(design, folder: Path):
     results_path = write_text_atomic(folder / "screen" / "results-invented.csv", make_demo_results(design))
     results = read_results(results_path, design)
     selection = evaluate_results(design, results)
-    files = [str(results_path)] + [str(p) for p in write_decision_record(selection, folder / "decision")]
+    files = [str(results_path)] + [str(p) for p in write_decision_record(
+        selection, folder / "decision", formats=_formats())]
     return files, (results, selection)
 
 

@@ -19,10 +19,11 @@ from pathlib import Path
 from typing import Any
 
 __all__ = ["render_plan_html", "render_plan_fragment", "render_plan_markdown",
-           "render_plan_json", "write_plan_report", "repr_html", "html_environment",
-           "markdown_environment"]
+           "render_plan_json", "render_plan_docx", "render_plan_pdf", "write_plan_report",
+           "repr_html", "html_environment", "markdown_environment", "FORMATS", "footer_text"]
 
 REPORT_FILES = ("report.html", "report.md", "plan.json")
+from .formats import DEFAULT_FORMATS, FORMATS, check_formats, footer_text  # noqa: E402
 
 
 def _as_dict(obj: Any) -> Any:
@@ -141,25 +142,75 @@ def render_plan_json(plan_dict: Any, screen_dict: Any = None) -> str:
     return json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
 
 
-def write_plan_report(plan: Any, out_dir: str | Path, screen: Any = None) -> list[Path]:
-    """Write ``report.html``, ``report.md`` and ``plan.json`` into ``out_dir``.
+def _docx(ctx: dict, html: str, paper: str) -> bytes:
+    from .wordfile import html_to_docx, plan_images
+
+    prov = ctx["plan"]["provenance"]
+    return html_to_docx(html, images=plan_images(ctx), paper=paper,
+                        title=f"Salt-form plan: {ctx['name']}", created=prov.get("created"),
+                        footer=footer_text(prov))
+
+
+def render_plan_docx(plan_dict: Any, screen_dict: Any = None, paper: str = "a4") -> bytes:
+    """The plan (and screen) as a Word document (bytes): same sections as the HTML page,
+    real heading styles, Word tables, the drawing and charts as captioned pictures."""
+    ctx = _context(plan_dict, screen_dict)
+    return _docx(ctx, html_environment().get_template("plan.html.j2").render(**ctx), paper)
+
+
+def render_plan_pdf(plan_dict: Any, screen_dict: Any = None, paper: str = "a4") -> bytes:
+    """The plan (and screen) as PDF for archiving, printed by headless Chromium
+    (:mod:`saltplan.reports.pdf`); page numbers, version and hashes in the footer."""
+    from .pdf import html_to_pdf
+
+    ctx = _context(plan_dict, screen_dict)
+    html = html_environment().get_template("plan.html.j2").render(**ctx)
+    prov = ctx["plan"]["provenance"]
+    return html_to_pdf(html, paper=paper, footer=footer_text(prov), created=prov.get("created"))
+
+
+def write_plan_report(plan: Any, out_dir: str | Path, screen: Any = None,
+                      formats: Any = None, paper: str = "a4") -> list[Path]:
+    """Write the report (``report.html`` and ``report.md`` by default; ``report.docx``,
+    ``report.pdf`` on request) and ``plan.json`` into ``out_dir``.
 
     Everything is rendered in memory first and written atomically
     (:class:`saltplan._io.OutputSet`): on any error no file is written.
 
+    Parameters
+    ----------
+    formats : iterable of str, optional
+        Any of :data:`FORMATS` (default html and md).
+    paper : {"a4", "letter"}
+        Page size of the Word and PDF files.
+
     Returns
     -------
     list of Path
-        The written files, in the order of :data:`REPORT_FILES`.
+        The written files: the reports in :data:`FORMATS` order, then ``plan.json``.
     """
     from .._io import OutputSet
 
+    chosen = check_formats(formats)
     plan_d = _as_dict(plan)
     screen_d = _as_dict(screen)
+    if plan_d is None and screen_d is not None:
+        plan_d = screen_d["plan"]
     ctx = _context(plan_d, screen_d)
+    html = html_environment().get_template("plan.html.j2").render(**ctx)
     out = OutputSet(out_dir)
-    out.add("report.html", html_environment().get_template("plan.html.j2").render(**ctx))
-    out.add("report.md", _markdown(ctx))
+    if "html" in chosen:
+        out.add("report.html", html)
+    if "md" in chosen:
+        out.add("report.md", _markdown(ctx))
+    if "docx" in chosen:
+        out.add("report.docx", _docx(ctx, html, paper))
+    if "pdf" in chosen:
+        from .pdf import html_to_pdf
+
+        prov = plan_d["provenance"]
+        out.add("report.pdf", html_to_pdf(html, paper=paper, footer=footer_text(prov),
+                                          created=prov.get("created")))
     out.add("plan.json", render_plan_json(plan_d))
     return out.commit()
 

@@ -12,6 +12,7 @@ is also paired with a text label or a line style, so colour is never the only cu
 """
 from __future__ import annotations
 
+import contextvars
 import io
 import math
 import re
@@ -60,7 +61,8 @@ def cached(fn):
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
-        key = fn.__qualname__ + json.dumps([args, kwargs], sort_keys=True, default=str)
+        key = (fn.__qualname__ + ("/png" if _PNG.get() else "")
+               + json.dumps([args, kwargs], sort_keys=True, default=str))
         with _CACHE_LOCK:
             hit = _CACHE.get(key)
         if hit is None:
@@ -91,10 +93,41 @@ def _figure(width_in: float, height_in: float):
     return Figure(figsize=(width_in, height_in), dpi=72, layout="constrained")
 
 
+_PNG: contextvars.ContextVar[bool] = contextvars.ContextVar("saltplan_chart_png", default=False)
+PNG_DPI = 200
+
+
+def as_png(fn, *args, **kwargs) -> bytes:
+    """The PNG (``PNG_DPI``, deterministic bytes) of a chart function's figure, for the
+    Word report, which cannot hold SVG: ``as_png(delta_pka_chart, rows, bands, 2.0)``."""
+    import base64
+
+    token = _PNG.set(True)
+    try:
+        text = fn(*args, **kwargs)
+    finally:
+        _PNG.reset(token)
+    return base64.b64decode(text.split(",", 1)[1])
+
+
 def _svg(fig, name: str, label: str) -> str:
-    """Serialize a Figure to an inline-ready SVG fragment (deterministic bytes)."""
+    """Serialize a Figure to an inline-ready SVG fragment (deterministic bytes).
+
+    Under :func:`as_png` the figure is rasterized instead ("data:image/png;base64,...").
+    """
     import matplotlib
     from matplotlib.backends.backend_svg import FigureCanvasSVG
+
+    if _PNG.get():
+        import base64
+
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+        FigureCanvasAgg(fig)
+        raw = io.BytesIO()
+        with matplotlib.rc_context(_RC):
+            fig.savefig(raw, format="png", dpi=PNG_DPI, metadata={"Software": None})
+        return "data:image/png;base64," + base64.b64encode(raw.getvalue()).decode("ascii")
 
     FigureCanvasSVG(fig)
     buf = io.StringIO()

@@ -10,6 +10,7 @@ from __future__ import annotations
 from typing import Any
 
 from . import charts, drawing, rationale
+from .caveatgroups import group_caveats
 from .context_base import (CATEGORY_LABELS, PROVENANCE_SHORT, SEVERITY_ORDER, MissingKey,
                            fmt, need, plain, text_of)
 from .screenview import screen_view
@@ -188,6 +189,41 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
     return out
 
 
+def counterion_rows(cands: list[dict], intake: dict | None) -> list[dict]:
+    """One row per counterion: each pKa value a ΔpKa used (once, with its source and where
+    it is used) and the library's intake note.
+
+    The API side of every transfer is the site's pKa (sites table and "How each pKa was
+    obtained"); the candidate table gives each ΔpKa.
+    """
+    notes = {n["counterion"]: n["note"] for n in (intake or {}).get("notes") or []}
+    rows: dict[str, dict] = {}
+    for c in cands:
+        r = rows.setdefault(c["counterion"], {"counterion": c["counterion"], "pkas": {},
+                                              "label": c["label"], "tier": c["tier"],
+                                              "candidates": [], "caveat_tags": [],
+                                              "intake_note": notes.get(c["counterion"], "")})
+        r["candidates"].append(c)
+        for tag in c.get("caveat_tags") or []:
+            if tag["id"] not in [t["id"] for t in r["caveat_tags"]]:
+                r["caveat_tags"].append(tag)
+        for t in c["transfers"]:
+            key = (t["counterion_pka"], t["counterion_source"])
+            v = r["pkas"].setdefault(key, {"pka": t["counterion_pka"],
+                                           "source": t["counterion_source"], "used": []})
+            use = f"{c['stoichiometry']} with {t['site']}"
+            if use not in v["used"]:
+                v["used"].append(use)
+    out = []
+    for r in rows.values():
+        pkas = list(r.pop("pkas").values())
+        for v in pkas:
+            v["used_text"] = ", ".join(v["used"])
+        r["caveat_tags"].sort(key=lambda t: int(t["id"][1:]))
+        out.append(dict(r, pkas=pkas))
+    return out
+
+
 def solubility_view(sol: Any) -> dict | None:
     """Normalize the plan's solubility sketch (``SolubilitySketch.to_dict()``); None if absent."""
     if not sol:
@@ -273,6 +309,8 @@ def input_rows(plan: dict, th: dict) -> list[dict]:
     for key, value in (plan.get("settings") or {}).items():
         if key in ("min_delta_pka",) and "min_delta_pka" in inputs:
             continue
+        if key == "weights_hash" and prov.get("weights_hash") == value:
+            continue                                    # written under hashes and provenance
         if key == "weights" and isinstance(value, dict):
             value = "; ".join(f"{k} {plain(v)}" for k, v in value.items())
         rows.append({"label": key.replace("_", " "), "value": plain(value),
@@ -292,10 +330,19 @@ def _measured_text(measured: Any) -> str:
 
 
 def verdict_view(plan: dict, cands: list[dict]) -> dict:
+    """The decision box; a top caveat shared with a card above says "as #k" (written once)."""
     v = need(plan, "verdict", "plan")
+    top = [c for c in cands if c["feasible"]][:3]
+    seen: dict[str, int] = {}
+    for c in top:
+        ids = c.get("caveat_ids") or []
+        c["top_tag"] = ids[0] if ids else ""
+        c["top_same_as"] = seen.get(c["top_tag"]) if c["top_tag"] else None
+        if c["top_tag"] and c["top_tag"] not in seen:
+            seen[c["top_tag"]] = c["rank"]
     return {"code": need(v, "code", "plan.verdict"), "text": need(v, "text", "plan.verdict"),
             "alternatives": [text_of(a) for a in (v.get("alternatives") or [])],
-            "top": [c for c in cands if c["feasible"]][:3],
+            "top": top,
             "has_salts": need(v, "code", "plan.verdict") == "salt_candidates" and bool(cands)}
 
 
@@ -317,6 +364,7 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
     sites = site_views(plan)
     cands = candidate_views(need(plan, "candidates", "plan"), "plan.candidates", sites)
     excluded = candidate_views(need(plan, "excluded", "plan"), "plan.excluded", sites)
+    grouped = group_caveats(cands)
     th = thresholds_of(plan)
     sol = solubility_view(plan.get("solubility"))
     screen_ctx = screen_view(screen)
@@ -343,6 +391,7 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
         chart_list.append({
             "id": "chart-dpka", "title": "ΔpKa per counterion against the category bands",
             "svg": charts.delta_pka_chart(rows, bands_of(th), plan["inputs"].get("min_delta_pka")),
+            "draw": (charts.delta_pka_chart, (rows, bands_of(th), plan["inputs"].get("min_delta_pka"))),
             "note": scope + "Filled bars: shortlisted; hatched: excluded. Error bars: "
                     "± the estimate uncertainty of the API site of the limiting proton "
                     "transfer (none when that site was measured). "
@@ -350,10 +399,8 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
     if graphics and sites:
         chart_list.append({
             "id": "chart-ionized", "title": "Fraction ionized against pH, per site",
-            "svg": charts.ionization_chart([{"kind": s["kind"], "pka": s["pka"],
-                                             "label": f"{s['label']} {s['kind']} "
-                                                      f"{s['drawing_label']}"}
-                                            for s in sites]),
+            "svg": charts.ionization_chart(_ion_rows(sites)),
+            "draw": (charts.ionization_chart, (_ion_rows(sites),)),
             "note": "Henderson–Hasselbalch for each site alone (site interactions ignored); "
                     "base pKa = pKa of the conjugate acid. Grey lines: pH 1.2 and 6.8 "
                     "(common dissolution media)."})
@@ -362,6 +409,8 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
             "id": "chart-solubility", "title": "pH–solubility profile (estimate)",
             "svg": charts.solubility_chart(sol["points"], sol["ph_max"], sol["s0"], sol["unit"],
                                            free=sol["free_points"]),
+            "draw": (charts.solubility_chart, (sol["points"], sol["ph_max"], sol["s0"],
+                                               sol["unit"]), {"free": sol["free_points"]}),
             "note": "Henderson–Hasselbalch with a salt plateau (pHmax from S₀ and the salt "
                     "solubility, see Inputs and assumptions); intrinsic solubility from an "
                     "estimate, about ±1 log unit." + (f" Sites used: {sol['profile_sites']}."
@@ -375,6 +424,8 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
         "inputs": input_rows(plan, th), "parent_notes": list(parent.get("notes") or []),
         "stripped": list(parent.get("stripped") or []),
         "sites": sites, "candidates": cands, "excluded": excluded, "thresholds": th,
+        "caveat_groups": grouped["groups"], "intake": grouped["intake"],
+        "counterion_rows": counterion_rows(cands, grouped["intake"]),
         "breakdown_legend": _legend(cands), "charts": chart_list, "solubility": sol,
         "screen": screen_ctx,
         "cautions": _cautions(need(plan, "cautions", "plan"), screen_ctx),
@@ -384,8 +435,14 @@ def build_context(plan: dict, screen: dict | None = None, graphics: bool = True)
                                               cv.get("code") or "")),
         "provenance": [{"label": k.replace("_", " "), "value": plain(v)} for k, v in prov.items()],
     }
-    ctx["rationale"] = rationale.paragraphs(ctx)
+    ctx["rationale_sections"] = rationale.sections(ctx)
+    ctx["rationale"] = [p for sec in ctx["rationale_sections"] for p in sec["paragraphs"]]
     return ctx
+
+
+def _ion_rows(sites: list[dict]) -> list[dict]:
+    return [{"kind": s["kind"], "pka": s["pka"],
+             "label": f"{s['label']} {s['kind']} {s['drawing_label']}"} for s in sites]
 
 
 DEFERENCE = ("Final choices defer to the pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, Q6A and "

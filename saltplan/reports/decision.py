@@ -113,16 +113,54 @@ def render_decision_json(selection) -> str:
     return json.dumps(selection.to_dict(), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
 
 
-def write_decision_record(selection, out_dir: str | Path) -> list[Path]:
-    """Write decision.html, decision.md and selection.json into ``out_dir`` (all or none)."""
+def _footer(selection) -> tuple[str, str | None]:
+    from .formats import footer_text
+
+    prov = dict(selection.to_dict().get("provenance") or {})
+    prov.setdefault("input_hash", prov.get("plan_input_hash"))
+    return footer_text(prov), prov.get("created")
+
+
+def render_decision_docx(selection, paper: str = "a4") -> bytes:
+    """The decision record as a Word document (same sections as the HTML page)."""
+    from .wordfile import html_to_docx
+
+    footer, created = _footer(selection)
+    return html_to_docx(render_decision_html(selection), paper=paper,
+                        title=_title(selection.to_dict()), created=created, footer=footer)
+
+
+def render_decision_pdf(selection, paper: str = "a4") -> bytes:
+    """The decision record as PDF (headless Chromium; page numbers and hashes in the footer)."""
+    from .pdf import html_to_pdf
+
+    footer, created = _footer(selection)
+    return html_to_pdf(render_decision_html(selection), paper=paper, footer=footer,
+                       created=created)
+
+
+def write_decision_record(selection, out_dir: str | Path, formats=None,
+                          paper: str = "a4") -> list[Path]:
+    """Write decision.html, decision.md (by default; any of ``html, md, docx, pdf`` with
+    ``formats``) and selection.json into ``out_dir`` (all or none)."""
+    from .formats import check_formats
+
+    chosen = check_formats(formats)
     out = OutputSet(out_dir)
-    out.add("decision.html", render_decision_html(selection))
-    out.add("decision.md", render_decision_markdown(selection))
+    if "html" in chosen:
+        out.add("decision.html", render_decision_html(selection))
+    if "md" in chosen:
+        out.add("decision.md", render_decision_markdown(selection))
+    if "docx" in chosen:
+        out.add("decision.docx", render_decision_docx(selection, paper))
+    if "pdf" in chosen:
+        out.add("decision.pdf", render_decision_pdf(selection, paper))
     out.add("selection.json", render_decision_json(selection))
     return out.commit()
 
 
-def select_and_record(design_dir, results, out_dir, thresholds=None, dose_mg=None):
+def select_and_record(design_dir, results, out_dir, thresholds=None, dose_mg=None,
+                      formats=None, paper: str = "a4"):
     """Evaluate a results file against a design folder and write the decision record.
 
     Everything is read, validated and rendered before the first file is written, so a bad
@@ -132,4 +170,4 @@ def select_and_record(design_dir, results, out_dir, thresholds=None, dose_mg=Non
 
     design = load_design(design_dir)
     selection = evaluate_results(design, results, thresholds, dose_mg=dose_mg)
-    return selection, write_decision_record(selection, out_dir)
+    return selection, write_decision_record(selection, out_dir, formats, paper)

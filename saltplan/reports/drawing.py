@@ -33,6 +33,12 @@ def site_label(site: dict) -> str:
     return f"~{pka:.1f} est."
 
 
+def structure_png(smiles: str, sites: Sequence[dict], width: int = 1040,
+                  height: int = 680) -> bytes:
+    """PNG bytes of the same labelled drawing (for the Word report, which cannot hold SVG)."""
+    return _draw(smiles, sites, width, height, png=True)
+
+
 @cached
 def structure_svg(smiles: str, sites: Sequence[dict], width: int = 520,
                   height: int = 340) -> str:
@@ -47,6 +53,10 @@ def structure_svg(smiles: str, sites: Sequence[dict], width: int = 520,
     width, height : int
         Canvas size [px].
     """
+    return _draw(smiles, sites, width, height, png=False)
+
+
+def _draw(smiles: str, sites: Sequence[dict], width: int, height: int, png: bool):
     from rdkit import Chem
     from rdkit.Chem import rdDepictor
     from rdkit.Chem.Draw import rdMolDraw2D
@@ -69,7 +79,7 @@ def structure_svg(smiles: str, sites: Sequence[dict], width: int = 520,
                                  f"({mol.GetNumAtoms()} atoms)", entry=smiles, field="atom")
         notes.setdefault(atom, []).append(site_label(site))
         colours[atom] = BASE_COLOUR if site["kind"] == "base" else ACID_COLOUR
-    drawer = rdMolDraw2D.MolDraw2DSVG(width, height)
+    drawer = (rdMolDraw2D.MolDraw2DCairo if png else rdMolDraw2D.MolDraw2DSVG)(width, height)
     opts = drawer.drawOptions()
     opts.padding = 0.2
     opts.clearBackground = True
@@ -79,6 +89,8 @@ def structure_svg(smiles: str, sites: Sequence[dict], width: int = 520,
                         highlightBonds=[], highlightAtomRadii={a: 0.45 for a in atoms})
     _draw_labels(drawer, mol, notes, colours)
     drawer.FinishDrawing()
+    if png:
+        return drawer.GetDrawingText()
     return _inline(drawer.GetDrawingText(), "labelled structure of the parent with site pKa")
 
 

@@ -65,9 +65,10 @@ def _candidate_sentence(c: dict) -> str:
     if c["tier"] is not None:
         s += f", acceptability tier {c['tier']}"
     s += f", drug content {c['drug_content_text']} w/w"
-    serious = [cv["text"] for cv in c["caveats"] if cv.get("severity") in ("serious", "warning")]
-    if serious:
-        s += "; liabilities to control: " + " ".join(t.rstrip(".") + "." for t in serious)
+    major = [t for t in c.get("caveat_tags") or [] if t["severity"] in ("serious", "warning")]
+    if major:
+        s += "; liabilities to control: " + ", ".join(
+            f"{t['code'].replace('_', ' ')} ({t['id']})" for t in major) + "."
     elif c["caveats"]:
         s += "; no warning-level liability flagged (information notes are listed in the report)."
     else:
@@ -75,9 +76,41 @@ def _candidate_sentence(c: dict) -> str:
     return s
 
 
-def paragraphs(ctx: dict[str, Any]) -> list[str]:
-    """Paragraphs of the rationale, in order: basis, rule, choices, exclusions, screen, limits."""
+def _section(sid: str, title: str, paragraphs: list[str]) -> dict:
+    return {"id": sid, "title": title, "paragraphs": paragraphs}
+
+
+def _risks(ctx: dict[str, Any]) -> list[str]:
+    """What could go wrong: API caveats, caveats of the recommended candidates, the rest."""
     out: list[str] = []
+    for cv in ctx.get("api_caveats") or []:
+        out.append(f"From the API structure ({cv.get('severity')}): {cv.get('text')}"
+                   + (f" ({cv['source']})" if cv.get("source") else ""))
+    top_ranks = {c["rank"] for c in ctx["candidates"][:3]}
+    groups = ctx.get("caveat_groups") or []
+    for g in groups:
+        if any(m["rank"] in top_ranks for m in g["members"]):
+            out.append(f"{g['id']} ({g['severity']}, {g['code'].replace('_', ' ')}; applies to "
+                       f"{g['members_text']}): {g['text']}")
+    others = [g for g in groups if g["severity"] in ("serious", "warning")
+              and not any(m["rank"] in top_ranks for m in g["members"])]
+    if others:
+        out.append("Lower-ranked candidates carry further warning-level caveats: " + "; ".join(
+            f"{g['id']} {g['code'].replace('_', ' ')} ({', '.join(g['ions'])})" for g in others)
+            + " (each written out under Ranked candidates).")
+    if not out:
+        out.append("The tool flagged no liability of the API or of the recommended counterions; "
+                   "the cautions below still apply.")
+    return out
+
+
+def sections(ctx: dict[str, Any]) -> list[dict]:
+    """The rationale in the order a CMC writer reads it.
+
+    Why these counterions, why not the next ones, what could go wrong, what to confirm by
+    experiment; each section a list of plain-text paragraphs.
+    """
+    why: list[str] = []
     name = ctx["name"]
     parent = ctx["parent"]
     sites = ctx["sites"]
@@ -86,10 +119,10 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
     ident = f"{name} ({parent.get('formula') or 'formula n/a'}"
     ident += f", MW {mw:.2f} g/mol)" if isinstance(mw, (int, float)) else ")"
     if sites:
-        out.append(f"{ident} has {len(sites)} ionizable site{'s' if len(sites) != 1 else ''} "
+        why.append(f"{ident} has {len(sites)} ionizable site{'s' if len(sites) != 1 else ''} "
                    f"relevant to salt formation: {_join([_site_phrase(s) for s in sites])}.")
     else:
-        out.append(f"{ident} has no ionizable site in the range that matters for salt "
+        why.append(f"{ident} has no ionizable site in the range that matters for salt "
                    f"formation. {ctx['verdict']['text']}")
     if ctx["verdict"]["code"] != "salt_candidates":
         alts = ctx["verdict"]["alternatives"]
@@ -97,7 +130,7 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
         if alts:
             text += (" " if text else "") + "Alternatives to consider: " + "; ".join(alts) + "."
         if text:
-            out.append(text)
+            why.append(text)
     if ctx["candidates"] or ctx["excluded"]:
         minimum = ctx["plan"]["inputs"].get("min_delta_pka")
         rule = ("Counterions were shortlisted by the ΔpKa rule, ΔpKa = pKa(protonated base) − "
@@ -111,13 +144,14 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
         if keys:
             rule += (" Feasible candidates were ranked by a score combining "
                      f"{_join(keys)}; the breakdown of each score is tabulated in the report.")
-        out.append(rule)
+        why.append(rule)
     top = ctx["candidates"][:3]
     if top:
         lead = "The recommended counterions for the first screen are: " if len(top) > 1 \
             else "The recommended counterion for the first screen is: "
-        out.append(lead + " ".join(f"({i + 1}) {_candidate_sentence(c)}"
+        why.append(lead + " ".join(f"({i + 1}) {_candidate_sentence(c)}"
                                    for i, c in enumerate(top)))
+    not_next: list[str] = []
     rest = ctx["candidates"][3:]
     if rest:
         shown = rest[:MAX_LISTED]
@@ -126,7 +160,7 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
             f"{c['score_text']})" for c in shown)
         if len(rest) > len(shown):
             text += f"; and {len(rest) - len(shown)} more (see the ranked table)"
-        out.append(text + ".")
+        not_next.append(text + ".")
     if ctx["excluded"]:
         shown = ctx["excluded"][:MAX_LISTED]
         text = "Excluded from the shortlist: " + "; ".join(
@@ -134,7 +168,9 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
         if len(ctx["excluded"]) > len(shown):
             text += (f"; and {len(ctx['excluded']) - len(shown)} more (see the excluded "
                      "counterions table)")
-        out.append(text + ".")
+        not_next.append(text + ".")
+    risks = _risks(ctx)
+    confirm: list[str] = []
     screen = ctx["screen"]
     if screen:
         solvents = [s.get("name") or s.get("id") for s in screen["solvents"]]
@@ -147,14 +183,24 @@ def paragraphs(ctx: dict[str, Any]) -> list[str]:
         if screen["raw_dropped"]:
             text += " Combinations left out of the screen: " + "; ".join(
                 _dropped_groups(screen["raw_dropped"])) + "."
-        out.append(text)
-    out.append("All pKa values marked as estimates, and every ΔpKa derived from them, are "
-               "planning figures, not measurements: pKa should be confirmed by potentiometric "
-               "or UV titration, and salt formation by XRPD, DSC/TGA and NMR stoichiometry. "
-               "The final choice of salt form rests with qualified staff and defers to the "
-               "pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, Q6A and M7, and local regulation.")
+        confirm.append(text)
+    confirm.append("All pKa values marked as estimates, and every ΔpKa derived from them, are "
+                   "planning figures, not measurements: pKa should be confirmed by potentiometric "
+                   "or UV titration, and salt formation by XRPD, DSC/TGA and NMR stoichiometry. "
+                   "The final choice of salt form rests with qualified staff and defers to the "
+                   "pharmacopoeias (USP–NF, Ph. Eur.), ICH Q3C, Q6A and M7, and local regulation.")
     prov = ctx["plan"]["provenance"]
-    out.append(f"Prepared with {prov['tool']} {prov['version']} (counterion library hash "
-               f"{str(prov['library_hash'])[:12]}…, input hash {str(prov['input_hash'])[:12]}…) "
-               f"on {prov['created']}.")
+    confirm.append(f"Prepared with {prov['tool']} {prov['version']} (counterion library hash "
+                   f"{str(prov['library_hash'])[:12]}…, input hash {str(prov['input_hash'])[:12]}…) "
+                   f"on {prov['created']}.")
+    out = [_section("sp-why", "Why these counterions", why)]
+    if not_next:
+        out.append(_section("sp-why-not", "Why not the next ones", not_next))
+    out.append(_section("sp-risks", "What could go wrong", risks))
+    out.append(_section("sp-confirm", "What to confirm by experiment", confirm))
     return out
+
+
+def paragraphs(ctx: dict[str, Any]) -> list[str]:
+    """All paragraphs of :func:`sections`, in order."""
+    return [p for sec in sections(ctx) for p in sec["paragraphs"]]

@@ -24,17 +24,35 @@ def _num(value: Any, digits: int) -> str:
     return "—" if value is None else fmt(value, digits)
 
 
-def _note_index(wells: list[dict]) -> list[dict]:
-    """Each distinct well note once, numbered in order of first appearance, with its wells."""
+def _note_index(wells: list[dict], names: dict[str, str] | None = None) -> list[dict]:
+    """Each distinct well note once, numbered in order of first appearance, with its wells.
+
+    Notes that differ only by the well's own solvent ("0.5 M stock in water" / "... in
+    heptane") are written once with "the well's solvent"; the solvent of each well is in
+    the plate map and the well table.
+    """
+    names = names or {}
     notes: dict[str, list[str]] = {}
+    originals: dict[str, set[str]] = {}
     for w in wells:
         for n in w.get("notes") or []:
-            notes.setdefault(str(n), []).append(w["well"])
-    return [{"number": i + 1, "text": text, "wells": ", ".join(ws)}
-            for i, (text, ws) in enumerate(notes.items())]
+            key = _note_key(str(n), w, names)
+            notes.setdefault(key, []).append(w["well"])
+            originals.setdefault(key, set()).add(str(n))
+    return [{"number": i + 1, "key": key, "wells": ", ".join(ws),
+             "text": next(iter(originals[key])) if len(originals[key]) == 1 else key}
+            for i, (key, ws) in enumerate(notes.items())]
 
 
-def _well_row(w: dict, numbers: dict[str, int]) -> dict:
+def _note_key(text: str, w: dict, names: dict[str, str]) -> str:
+    sv = w.get("solvent") or ""
+    for token in sorted({names.get(sv, ""), sv} - {""}, key=len, reverse=True):
+        if token in text:
+            return text.replace(token, "the well's solvent")
+    return text
+
+
+def _well_row(w: dict, numbers: dict[str, int], names: dict[str, str] | None = None) -> dict:
     return {
         "well": w["well"], "kind": w["kind"], "counterion": w.get("counterion") or "—",
         "stoichiometry": w.get("stoichiometry") or "—",
@@ -46,8 +64,39 @@ def _well_row(w: dict, numbers: dict[str, int]) -> dict:
         "counterion_ul": _num(w.get("counterion_ul"), 2),
         "stock_ul": _num(w.get("stock_ul"), 1), "solvent_ul": _num(w.get("solvent_ul"), 0),
         "flags": ", ".join(w.get("flags") or []),
-        "notes": ", ".join(str(numbers[str(n)]) for n in (w.get("notes") or [])),
+        "notes": ", ".join(str(numbers[_note_key(str(n), w, names or {})])
+                           for n in (w.get("notes") or [])),
     }
+
+
+_GROUP_FIELDS = ("kind", "counterion", "stoichiometry", "equivalents", "mode", "api_mg",
+                 "counterion_mg", "counterion_ul", "stock_ul", "solvent_ul", "antisolvent",
+                 "flags")
+
+
+def well_groups(rows: list[dict]) -> list[dict]:
+    """Wells that get the same amounts, grouped (for the Markdown and Word reports).
+
+    Wells differing only in solvent and notes share one row listing the wells and their
+    solvents; every well's own row stays in ``worksheet.csv`` and in the HTML well table.
+    """
+    groups: dict[tuple, dict] = {}
+    for r in rows:
+        key = tuple(r[k] for k in _GROUP_FIELDS)
+        g = groups.setdefault(key, dict({k: r[k] for k in _GROUP_FIELDS}, wells=[],
+                                        solvents=[], notes=[]))
+        g["wells"].append(r["well"])
+        if r["solvent"] not in g["solvents"]:
+            g["solvents"].append(r["solvent"])
+        for n in (r["notes"].split(", ") if r["notes"] else []):
+            if n not in g["notes"]:
+                g["notes"].append(n)
+    out = list(groups.values())
+    for g in out:
+        g["wells_text"] = ", ".join(g["wells"])
+        g["solvents_text"] = ", ".join(g["solvents"])
+        g["notes_text"] = ", ".join(g["notes"])
+    return out
 
 
 def _totals(totals: dict) -> tuple[list[dict], list[dict], list[dict]]:
@@ -123,12 +172,26 @@ def screen_view(screen: dict | None) -> dict | None:
         except ValueError as exc:
             raise MissingKey(f"report input: {exc}") from None
     basis_rows, basis_ions = _basis(screen.get("basis") or {})
-    notes = _note_index(wells)
-    numbers = {n["text"]: n["number"] for n in notes}
+    notes = _note_index(wells, names)
+    numbers = {n["key"]: n["number"] for n in notes}
     totals_rows, ion_totals, stocks = _totals(screen.get("totals") or {})
     budget = screen.get("budget") or {}
     n_samples = sum(1 for w in wells if w["kind"] == "sample")
+    well_rows = [_well_row(w, numbers, names) for w in wells]
+    totals_by_ion = {t["counterion"]: t for t in ion_totals}
+    ions_merged = [dict(b, totals=totals_by_ion.get(b["counterion"])) for b in basis_ions]
+    ions_merged += [dict(counterion=t["counterion"], mw="—", form="", density="—",
+                         mass_fraction="—", dosing="", mw_source="", density_source="",
+                         totals=t) for t in ion_totals
+                    if t["counterion"] not in {b["counterion"] for b in basis_ions}]
+    stock_groups: dict[tuple, dict] = {}
+    for t in stocks:
+        key = (t["counterion"], t["molarity"], t["prepare_ml"], t["weigh_mg"], t["basis"])
+        stock_groups.setdefault(key, dict(t, solvents=[]))["solvents"].append(t["solvent"])
     return {
+        "ions_merged": ions_merged,
+        "stock_groups": [dict(g, solvents_text=", ".join(g["solvents"]))
+                         for g in stock_groups.values()],
         "settings_rows": _setting_rows(screen.get("settings") or {}),
         "solvents": solvents,
         "modes": [{"id": m.get("id") or "", "label": m.get("label") or m.get("id") or "",
@@ -140,7 +203,7 @@ def screen_view(screen: dict | None) -> dict | None:
                            for k, v in (layout.get("columns") or {}).items()],
         "layout_order": layout.get("order") or "",
         "legend": platemap.counterion_styles(wells) if grids else [],
-        "wells": [_well_row(w, numbers) for w in wells], "notes": notes,
+        "wells": well_rows, "well_groups": well_groups(well_rows), "notes": notes,
         "n_samples": n_samples,
         "n_controls": len(wells) - n_samples,
         "raw_dropped": [dict(d) for d in screen.get("dropped") or []],

@@ -1,0 +1,230 @@
+"""The browser workbench (saltplan/web) driven in-process by Starlette's TestClient."""
+from __future__ import annotations
+
+import re
+
+import pytest
+
+pytest.importorskip("starlette")
+from starlette.testclient import TestClient  # noqa: E402
+
+from saltplan.web import create_app  # noqa: E402
+from saltplan.web.app import MAX_BODY_BYTES  # noqa: E402
+from test_reliability_injection import HOSTILE  # noqa: E402
+
+# an invented tertiary-amine test base (aliphatic amine pKa around 9-10, CRC Handbook range)
+API = "CN(C)CCc1ccc(Cl)cc1"
+CSP_SELF = "script-src 'self'"
+
+
+@pytest.fixture
+def client():
+    c = TestClient(create_app())
+    assert c.get("/").status_code == 200          # sets the CSRF cookie
+    return c
+
+
+def _tok(c):
+    return c.cookies.get("saltplan_csrf")
+
+
+def _new(c, structure=API, name="HRN-101", **extra):
+    return c.post("/new", data={"csrf_token": _tok(c), "structure": structure, "name": name, **extra},
+                  follow_redirects=False)
+
+
+def _compound(c, **kw):
+    r = _new(c, **kw)
+    assert r.status_code == 303, r.text[-500:]
+    return r.headers["location"]
+
+
+def test_pages_carry_security_headers(client):
+    r = client.get("/")
+    assert CSP_SELF in r.headers["content-security-policy"]
+    assert r.headers["x-frame-options"] == "DENY"
+    assert "http" not in r.headers["content-security-policy"]     # nothing from a network
+    assert 'src="/static/htmx.min.js"' in r.text
+
+
+def test_static_assets_served_and_licensed(client):
+    for path in ("/static/htmx.min.js", "/static/workbench.js", "/static/workbench.css",
+                 "/report.css", "/static/LICENSES.md"):
+        assert client.get(path).status_code == 200, path
+    assert "htmx" in client.get("/static/LICENSES.md").text
+
+
+def test_new_compound_then_compound_page(client):
+    url = _compound(client)
+    r = client.get(url)
+    assert r.status_code == 200
+    assert "HRN-101" in r.text
+    assert "Ranked candidates" in r.text and "sp-cands" in r.text
+    assert 'for="pka"' in r.text and 'id="pka"' in r.text
+    home = client.get("/")
+    assert "HRN-101" in home.text and url in home.text
+
+
+def test_bad_smiles_is_inline_error_not_error_page(client):
+    r = _new(client, structure="C1CC((")
+    assert r.status_code == 422
+    assert 'id="structure-error"' in r.text and "unparsable SMILES" in r.text
+    assert "C1CC((" in r.text                           # what was typed is kept
+    assert "<h1>New compound</h1>" in r.text
+
+
+def test_text_is_never_a_server_path(client, tmp_path):
+    f = tmp_path / "x.smi"
+    f.write_text("CCN(CC)CC\n")
+    for text in (str(f), "/etc/passwd", "../../etc/hosts", str(tmp_path)):
+        r = _new(client, structure=text)
+        assert r.status_code == 422, text
+        assert "not found" not in r.text and "directory" not in r.text
+
+
+def test_upload_mol_file(client):
+    from rdkit import Chem
+
+    block = Chem.MolToMolBlock(Chem.MolFromSmiles(API))
+    r = client.post("/new", data={"csrf_token": _tok(client), "name": ""},
+                    files={"file": ("a.mol", block.encode(), "chemical/x-mdl-molfile")},
+                    follow_redirects=False)
+    assert r.status_code == 303
+
+
+def test_upload_two_record_sdf_refused_inline(client):
+    from rdkit import Chem
+
+    block = Chem.MolToMolBlock(Chem.MolFromSmiles(API)) + "$$$$\n"
+    r = client.post("/new", data={"csrf_token": _tok(client)},
+                    files={"file": ("a.sdf", (block * 2).encode(), "chemical/x-mdl-sdfile")})
+    assert r.status_code == 422 and "2 records" in r.text
+
+
+def test_csrf_refused(client):
+    r = client.post("/new", data={"structure": API}, follow_redirects=False)
+    assert r.status_code == 403 and "security token" in r.text
+    r = client.post("/new", data={"structure": API, "csrf_token": "x" * 32}, follow_redirects=False)
+    assert r.status_code == 403
+    url = _compound(client)
+    r = client.post(url + "/inputs", data={"pka": "9"}, headers={"hx-request": "true"})
+    assert r.status_code == 403
+    r = client.post(url + "/screen", data={"budget_mg": "100"})
+    assert r.status_code == 403
+
+
+def test_upload_size_limit(client):
+    big = b"C" * (MAX_BODY_BYTES + 10)
+    r = client.post("/new", data={"csrf_token": _tok(client)}, files={"file": ("a.smi", big)})
+    assert r.status_code == 413 and "too large" in r.text
+
+
+def test_measured_pka_updates_plan_in_place(client):
+    url = _compound(client)
+    r = client.post(url + "/inputs", headers={"hx-request": "true"},
+                    data={"csrf_token": _tok(client), "pka": "base=7.10", "dose_mg": "50",
+                          "route": "oral"})
+    assert r.status_code == 200
+    assert "<html" not in r.text                       # a fragment for htmx, not a page
+    assert "7.1" in r.text and "measured" in r.text
+    plan = client.get(url + "/download/plan.json").json()
+    assert plan["inputs"]["dose_mg"] == 50
+    assert any(s.get("provenance") == "measured" or "measured" in str(s) for s in plan["sites"])
+
+
+@pytest.mark.parametrize("field,value,word", [("dose_mg", "lots", "daily dose"),
+                                               ("pka", "acid=x", "pka"),
+                                               ("melting_point_c", "9000", "melting point"),
+                                               ("route", "rectal<script>", "route")])
+def test_bad_input_is_inline(client, field, value, word):
+    url = _compound(client)
+    r = client.post(url + "/inputs", headers={"hx-request": "true"},
+                    data={"csrf_token": _tok(client), field: value})
+    assert r.status_code == 200 and 'id="inputs-error"' in r.text
+    assert word.lower() in r.text.lower()
+    assert "<script>" not in r.text.split("sp-report")[0]
+
+
+def test_screen_designer_and_over_budget(client):
+    url = _compound(client)
+    r = client.post(url + "/screen", data={"csrf_token": _tok(client), "budget_mg": "2"},
+                    headers={"hx-request": "true"})
+    assert 'id="screen-error"' in r.text and "budget" in r.text
+    assert client.get(url + "/download/worksheet.csv").status_code == 404   # nothing saved
+    r = client.post(url + "/screen", data={"csrf_token": _tok(client), "budget_mg": "800"},
+                    headers={"hx-request": "true"})
+    assert "sp-plate" in r.text and "screen-error" not in r.text
+    csv_text = client.get(url + "/download/worksheet.csv").text
+    assert csv_text.count("\n") > 4
+    report = client.get(url + "/download/report.html")
+    assert "attachment" in report.headers["content-disposition"] and "sp-plate" in report.text
+
+
+def test_downloads(client):
+    url = _compound(client)
+    for kind, mark in (("report.html", "<html"), ("report.md", "#"), ("plan.json", "{")):
+        r = client.get(url + "/download/" + kind)
+        assert r.status_code == 200 and r.text.lstrip().startswith(mark) or mark in r.text[:200]
+        assert 'filename="HRN-101-' in r.headers["content-disposition"]
+    assert client.get(url + "/download/..%2f..%2fetc%2fpasswd").status_code == 404
+    assert client.get("/c/../download/plan.json").status_code == 404
+    assert client.get("/c/x1").status_code == 404
+
+
+@pytest.mark.parametrize("case", sorted(HOSTILE))
+def test_hostile_names_escaped_everywhere(client, case):
+    text = HOSTILE[case]
+    url = _compound(client, name=text)
+    pages = [client.get("/").text, client.get(url).text, client.get(url + "/screen").text,
+             client.get("/", params={"q": text}).text]
+    for html in pages:
+        assert "<script>alert" not in html
+        assert "onerror=alert" not in html.replace("onerror=alert(1)&gt;", "")
+        assert not re.search(r"<svg onload", html)
+    if case == "jinja":                                   # not evaluated as a template
+        assert "{{ 7*7 }}" in pages[1]
+
+
+def test_search_name_substructure_similarity(client):
+    _compound(client, name="HRN-101")
+    _compound(client, structure="CCOC(=O)c1ccc(N)cc1", name="HRN-102")
+    assert "HRN-102" not in client.get("/?q=101&mode=name").text.split("<main")[1]
+    sub = client.get("/?q=c1ccc(Cl)cc1&mode=substructure").text.split("<main")[1]
+    assert "HRN-101" in sub and "HRN-102" not in sub
+    sim = client.get("/?q=CN(C)CCc1ccc(Br)cc1&mode=similarity").text.split("<main")[1]
+    assert "HRN-101" in sim
+    bad = client.get("/?q=C1((&mode=substructure").text
+    assert 'class="error"' in bad
+
+
+def test_token_gate_for_non_local_bind():
+    c = TestClient(create_app(token="s3cret-token-value"))
+    assert c.get("/").status_code == 401
+    assert c.get("/static/htmx.min.js").status_code == 401
+    assert c.get("/?token=wrong").status_code == 401
+    r = c.get("/?token=s3cret-token-value")
+    assert r.status_code == 200                  # redirected, cookie kept
+    assert c.get("/new").status_code == 200
+
+
+def test_serve_command_binds_loopback_by_default(monkeypatch, cli):
+    import uvicorn
+
+    seen = {}
+    monkeypatch.setattr(uvicorn, "run", lambda app, host, port, **kw: seen.update(host=host, port=port))
+    result = cli("serve")
+    assert result.exit_code == 0, result.output
+    assert seen["host"] == "127.0.0.1" and seen["port"] > 0
+    assert "token" not in result.output and f":{seen['port']}/" in result.output
+
+
+def test_serve_command_token_beyond_loopback(monkeypatch, cli):
+    import uvicorn
+
+    from saltplan.cli.serve import is_loopback
+
+    monkeypatch.setattr(uvicorn, "run", lambda app, host, port, **kw: None)
+    result = cli("serve", "--host", "0.0.0.0", "--port", "8765")     # never actually bound
+    assert result.exit_code == 0
+    assert re.search(r"token: \S{20,}", result.output)
+    assert is_loopback("127.0.0.1") and is_loopback("::1") and not is_loopback("0.0.0.0")

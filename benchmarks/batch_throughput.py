@@ -131,7 +131,7 @@ def time_batch(path: Path, jobs: int, evaluator=None, rounds: int = 1) -> tuple[
 _CHILD = r"""
 import resource, sys, time
 sys.path.insert(0, {bench!r})
-from saltplan.batch import run_batch
+from saltplan.batch.run import run_batch
 evaluator = None
 if {which!r} == "floor":
     from batch_throughput import floor_evaluator as evaluator
@@ -192,7 +192,7 @@ def main(argv=None) -> int:
                   f"{args.rows / mach_s:,.0f} mol/s  (x{mach_s / floor_s:.2f} the floor's time)")
 
         try:
-            import saltplan.plan  # noqa: F401
+            import saltplan.plan.planner  # noqa: F401
             have_plan = True
         except ImportError:
             have_plan = False

@@ -37,7 +37,7 @@ def rank_of(plan_dict, counterion):
 
 
 def main(argv):
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     verbose = "--verbose" in argv
     rows = load_rows()

@@ -193,7 +193,7 @@ def load_yaml_path(path: str | Path, error=ParameterError) -> Any:
     return load_yaml_text(text, str(path), error)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def package_yaml(*parts: str) -> Any:
     """Parse a YAML file shipped inside the package (cached)."""
     node = package_file(*parts)

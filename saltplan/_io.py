@@ -99,7 +99,7 @@ class OutputSet:
                 for later, _ in staged[i:]:
                     with contextlib.suppress(FileNotFoundError):
                         os.unlink(later)
-                for done, was_there in zip(written, existed):
+                for done, was_there in zip(written, existed, strict=False):
                     if not was_there:
                         with contextlib.suppress(FileNotFoundError):
                             os.unlink(done)

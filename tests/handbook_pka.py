@@ -19,7 +19,8 @@ None of these rows comes from the development set in ../shared/data/pka-dev.
 """
 from __future__ import annotations
 
-CRC, SD, PERRIN, AS = "CRC (from memory)", "S&D 1979 (from memory)", "Perrin 1965/1972 (from memory)", "A&S 1984 (from memory)"
+CRC, SD = "CRC (from memory)", "S&D 1979 (from memory)"
+PERRIN, AS = "Perrin 1965/1972 (from memory)", "A&S 1984 (from memory)"
 
 HANDBOOK = [
     # ------------------------------------------------------------- substituted phenols

@@ -25,7 +25,8 @@ BEGIN, END = "<!-- census:begin -->", "<!-- census:end -->"
 #: (module, test function) -> input class shown in the table
 CLASSES = {
     ("structure", "test_hostile_smiles_refused"):
-        "SMILES text refused: empty, garbage, 10^5-atom, radicals, bad aromaticity, dots, unicode, NUL (parent / sites / plan)",
+        "SMILES text refused: empty, garbage, 10^5-atom, radicals, bad aromaticity, dots, unicode, NUL "
+        "(parent / sites / plan)",
     ("structure", "test_hostile_smiles_refused_by_screen"): "the same SMILES refused by screen",
     ("structure", "test_library_api_refuses_the_same"): "the same SMILES refused by the library API",
     ("structure", "test_odd_but_valid_smiles_accepted"):
@@ -34,7 +35,8 @@ CLASSES = {
     ("structure", "test_max_atoms_option_raises_the_cap"): "heavy-atom cap and --max-atoms",
     ("structure", "test_verbose_keeps_the_domain_error"): "--verbose shows the error",
     ("files", "test_hostile_structure_file_refused"):
-        "structure FILE: missing, folder, binary, UTF-16, Latin-1, empty, huge line, 2 records (parent / sites / plan / screen)",
+        "structure FILE: missing, folder, binary, UTF-16, Latin-1, empty, huge line, 2 records "
+        "(parent / sites / plan / screen)",
     ("files", "test_structure_file_encodings_accepted"): "structure FILE with BOM, CRLF, CR, tab accepted",
     ("files", "test_mol_file_accepted"): "structure FILE with BOM, CRLF, CR, tab accepted",
     ("files", "test_hostile_results_file_refused"):
@@ -43,7 +45,8 @@ CLASSES = {
     ("files", "test_hostile_design_refused"):
         "select DESIGN_DIR: damaged design.json (not JSON, NaN, nesting, wrong types)",
     ("files", "test_design_folder_without_design"): "select DESIGN_DIR: missing / empty folder",
-    ("files", "test_hostile_batch_input_refused"): "batch FILE unreadable: missing, empty, header only, binary, NUL, Latin-1",
+    ("files", "test_hostile_batch_input_refused"):
+        "batch FILE unreadable: missing, empty, header only, binary, NUL, Latin-1",
     ("files", "test_bad_batch_row_is_a_row_error_not_a_crash"):
         "batch: one bad row (1 MB SMILES, 3 × 10^5 ring atoms, junk, line break) is a row error, neighbours planned",
     ("files", "test_batch_bom_crlf_same_as_plain"): "batch FILE with BOM / CRLF: same table",
@@ -65,30 +68,38 @@ CLASSES = {
     ("injection", "test_compound_name_is_escaped_in_plan_report"): "injection: compound name (HTML + Markdown report)",
     ("injection", "test_compound_name_is_escaped_in_jupyter_fragment"): "injection: compound name (Jupyter fragment)",
     ("injection", "test_name_from_a_mol_file_title_is_escaped"): "injection: compound name (HTML + Markdown report)",
-    ("injection", "test_library_entry_name_and_liability_are_escaped"): "injection: user library entry name and liability",
+    ("injection", "test_library_entry_name_and_liability_are_escaped"):
+        "injection: user library entry name and liability",
     ("injection", "test_chart_labels_with_markup_are_escaped"): "injection: user library entry name and liability",
     ("injection", "test_solvent_names_are_escaped"): "injection: user solvent-library names",
-    ("injection", "test_results_notes_are_escaped_in_decision_record"): "injection: results notes and form labels (decision record)",
-    ("injection", "test_form_labels_are_escaped_in_decision_record"): "injection: results notes and form labels (decision record)",
+    ("injection", "test_results_notes_are_escaped_in_decision_record"):
+        "injection: results notes and form labels (decision record)",
+    ("injection", "test_form_labels_are_escaped_in_decision_record"):
+        "injection: results notes and form labels (decision record)",
     ("injection", "test_batch_ids_and_names_are_escaped_in_summary"): "injection: batch ids and names (HTML summary)",
-    ("injection", "test_every_safe_filter_in_templates_is_reviewed"): "template audit: every `safe` filter and `Markup` reviewed",
+    ("injection", "test_every_safe_filter_in_templates_is_reviewed"):
+        "template audit: every `safe` filter and `Markup` reviewed",
     ("injection", "test_markup_in_python_is_reviewed"): "template audit: every `safe` filter and `Markup` reviewed",
     ("output", "test_late_render_failure_leaves_nothing"):
         "late failure while rendering (plan, screen, select, batch, sites --svg): no file left",
     ("output", "test_failure_while_moving_files_into_place"): "failure between renames: no file left",
     ("output", "test_failure_keeps_earlier_outputs_intact"): "failing re-run keeps the earlier outputs byte for byte",
-    ("output", "test_demo_failure_leaves_nothing"): "late failure while rendering (plan, screen, select, batch, sites --svg): no file left",
+    ("output", "test_demo_failure_leaves_nothing"):
+        "late failure while rendering (plan, screen, select, batch, sites --svg): no file left",
     ("output", "test_output_path_is_a_file"): "output path blocked by a file",
     ("output", "test_successful_runs_leave_no_temporaries"): "successful runs leave no temporaries",
     ("limits", "test_pathological_ring_systems_finish"):
         "pathological structures: C60, 30-ring ladders, cages, macrocycles, 21-site chains (sites / plan)",
-    ("limits", "test_ladders_are_what_they_say"): "pathological structures: C60, 30-ring ladders, cages, macrocycles, 21-site chains (sites / plan)",
+    ("limits", "test_ladders_are_what_they_say"):
+        "pathological structures: C60, 30-ring ladders, cages, macrocycles, 21-site chains (sites / plan)",
     ("limits", "test_many_site_molecule_beyond_the_default_cap_is_bounded"): "heavy-atom cap and --max-atoms",
     ("limits", "test_underflowing_solubility_estimate_is_a_clear_error"): "heavy-atom cap and --max-atoms",
     ("limits", "test_default_heavy_atom_cap"): "heavy-atom cap and --max-atoms",
     ("limits", "test_cap_counts_the_api_not_its_counterions"): "heavy-atom cap and --max-atoms",
-    ("properties", "test_para_nitro_never_raises_acid_pka"): "chemical sanity: para-nitro on phenols / benzoic acids (pairs)",
-    ("properties", "test_para_donor_never_lowers_aryl_base_pka"): "chemical sanity: para-Me / OMe on anilines / pyridines (pairs)",
+    ("properties", "test_para_nitro_never_raises_acid_pka"):
+        "chemical sanity: para-nitro on phenols / benzoic acids (pairs)",
+    ("properties", "test_para_donor_never_lowers_aryl_base_pka"):
+        "chemical sanity: para-Me / OMe on anilines / pyridines (pairs)",
     ("properties", "test_c_methyl_never_lowers_amine_pka"): "chemical sanity: C-methyl on aliphatic amines (pairs)",
 }
 PROPERTY = "property tests (hypothesis, derandomized; examples each as set in the file)"

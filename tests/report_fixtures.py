@@ -139,6 +139,6 @@ def plan_dict(name="TST-7 (test fixture)") -> dict:
 
 def screen_dict(plan=None, budget_mg=400.0) -> dict:
     """The real screen designer run on the hand-made plan."""
-    from saltplan.screen import design_screen
+    from saltplan.screen.design import design_screen
 
     return design_screen(copy.deepcopy(plan or plan_dict()), budget_mg).to_dict()

@@ -11,10 +11,10 @@ from types import SimpleNamespace as NS
 
 import pytest
 
-from saltplan import assessment as A
-from saltplan import ranking as R
-from saltplan import solubility as S
 from saltplan.errors import ParameterError
+from saltplan.plan import assessment as A
+from saltplan.plan import ranking as R
+from saltplan.plan import solubility as S
 
 # IUPAC standard atomic weights, abridged/conventional values (IUPAC CIAAW 2021)
 IUPAC = {"C": 12.011, "H": 1.008, "N": 14.007, "O": 15.999, "S": 32.06, "Cl": 35.45,
@@ -242,7 +242,7 @@ def _scored(cands, ions, dose=None):
 
 def test_breakdown_sums_to_score_and_keys_are_stable():
     cands = A.assess(DIPHENHYDRAMINE, [site(1, "base", 9.0)], [HCL, MSA])
-    for c, score, br in _scored(cands, {"hydrochloride": HCL, "mesylate": MSA}):
+    for _c, score, br in _scored(cands, {"hydrochloride": HCL, "mesylate": MSA}):
         assert tuple(br) == R.BREAKDOWN_KEYS
         assert sum(br.values()) == pytest.approx(score)
 
@@ -407,7 +407,7 @@ def test_summed_formula_and_mw_equal_rdkit_on_the_combined_smiles():
     from rdkit import Chem
     from rdkit.Chem import Descriptors, rdMolDescriptors
 
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     library = load_counterions()
     cases = [(DIPHENHYDRAMINE, [site(1, "base", 9.0)]),
@@ -440,8 +440,8 @@ def test_zwitterion_profile_is_u_shaped_around_its_isoelectric_range():
     assert prof[1.0] > 100 * prof[7.0] and prof[10.0] < 2 * prof[7.0]
 
 
-@pytest.mark.parametrize("module", ["saltplan.assessment", "saltplan.stoichiometry",
-                                    "saltplan.solubility", "saltplan.ranking"])
+@pytest.mark.parametrize("module", ["saltplan.plan.assessment", "saltplan.plan.stoichiometry",
+                                    "saltplan.plan.solubility", "saltplan.plan.ranking"])
 def test_docstring_examples(module):
     import doctest
     import importlib
@@ -457,7 +457,7 @@ def test_mol_weight_equals_rdkit_molwt(smiles):
     from rdkit import Chem
     from rdkit.Chem import Crippen, Descriptors
 
-    from saltplan.stoichiometry import mol_weight
+    from saltplan.plan.stoichiometry import mol_weight
 
     mol = Chem.MolFromSmiles(smiles)
     assert mol_weight(mol) == pytest.approx(Descriptors.MolWt(mol), abs=1e-9)

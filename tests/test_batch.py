@@ -2,7 +2,7 @@
 
 Most tests run the batch machinery with a small stand-in evaluator defined here
 (:func:`standin_plan`), so they test batch itself and not the chemistry of
-:func:`saltplan.plan.plan_salts`; the end-to-end tests at the bottom use the real planner
+:func:`saltplan.plan.planner.plan_salts`; the end-to-end tests at the bottom use the real planner
 and skip while it is not installed. Canonical SMILES are checked against RDKit itself
 (reference library) and fixture molecules are common laboratory chemicals.
 """
@@ -18,7 +18,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from saltplan.batch import COLUMNS, evaluate_many, iter_evaluate, run_batch, summarize_plan
+from saltplan.batch.run import COLUMNS, evaluate_many, iter_evaluate, run_batch, summarize_plan
 from saltplan.errors import InputFileError, ParameterError
 from saltplan.structure import read_structure
 
@@ -115,7 +115,7 @@ def test_valid_csv_one_row_per_input_in_order():
     assert list(df["id"]) == list(src["id"])
     assert df["error"].isna().all()
     # canonical parent SMILES = RDKit's canonical SMILES of the free form (reference library)
-    for given, got in zip(src["smiles"], df["smiles"]):
+    for given, got in zip(src["smiles"], df["smiles"], strict=True):
         largest = max(given.split("."), key=len)
         assert got == Chem.MolToSmiles(Chem.MolFromSmiles(largest))
     tea = df.iloc[0]
@@ -133,7 +133,7 @@ def test_valid_csv_one_row_per_input_in_order():
 def test_bad_rows_carry_errors_and_the_run_goes_on():
     df = evaluate_many(FIX / "batch_bad_rows.csv", evaluator=standin_plan)
     assert len(df) == 8 and list(df["row"]) == list(range(1, 9))
-    err = dict(zip(df["id"], df["error"]))
+    err = dict(zip(df["id"], df["error"], strict=True))
     assert err["SP-0101"] is None and err["SP-0108"] is None
     assert "unparsable SMILES" in err["SP-0102"]
     assert err["SP-0103"] == "empty SMILES"
@@ -414,7 +414,7 @@ def test_xlsx_keeps_formula_like_text_as_text(tmp_path):
 
 
 def test_xlsx_row_cap_refuses_without_partial_file(tmp_path, monkeypatch):
-    import saltplan.batch_output as bo
+    import saltplan.batch.outputs as bo
 
     monkeypatch.setattr(bo, "XLSX_MAX_ROWS", 5)
     out = tmp_path / "big.xlsx"
@@ -462,7 +462,7 @@ def test_summary_counts_escaping_and_determinism(tmp_path):
 # --------------------------------------------------------------------------- CLI
 @pytest.fixture
 def standin(monkeypatch):
-    import saltplan.batch as batch_mod
+    import saltplan.batch.run as batch_mod
 
     monkeypatch.setattr(batch_mod, "_default_evaluator", lambda: standin_plan)
     monkeypatch.setattr(batch_mod, "_preflight_libraries", lambda libraries, evaluator: None)
@@ -518,7 +518,7 @@ def test_end_to_end_with_plan_salts(tmp_path):
     _real_planner()
     df = evaluate_many(FIX / "batch_valid.csv")
     assert df["row"].tolist() == list(range(1, 7))
-    by_name = dict(zip(df["name"], df.to_dict("records")))
+    by_name = dict(zip(df["name"], df.to_dict("records"), strict=True))
     # triethylamine pKa(BH+) 10.75 (CRC Handbook, dissociation constants of organic bases)
     tea = by_name["triethylamine"]
     assert tea["error"] is None and abs(tea["most_basic_pka"] - 10.75) < 1.0
@@ -532,7 +532,7 @@ def test_end_to_end_with_plan_salts(tmp_path):
 
 
 def test_xlsx_refused_early_from_the_row_estimate(tmp_path, monkeypatch):
-    import saltplan.batch_output as bo
+    import saltplan.batch.outputs as bo
 
     monkeypatch.setattr(bo, "XLSX_MAX_ROWS", 100)
     calls = []
@@ -586,7 +586,7 @@ def test_output_may_not_replace_the_input(tmp_path):
 
 
 def test_json_writer_never_writes_nan(tmp_path):
-    from saltplan.batch_output import JsonWriter
+    from saltplan.batch.outputs import JsonWriter
 
     out = tmp_path / "o.json"
     w = JsonWriter(out, ("row", "most_basic_pka"))

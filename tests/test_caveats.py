@@ -12,9 +12,9 @@ from types import SimpleNamespace as NS
 import pytest
 from rdkit import Chem
 
-from saltplan import assessment as A
-from saltplan import caveats as C
-from saltplan import ranking as R
+from saltplan.plan import assessment as A
+from saltplan.plan import caveats as C
+from saltplan.plan import ranking as R
 
 SETTINGS = R.load_ranking_config().caveat_settings
 

@@ -123,7 +123,7 @@ benzathine piperazine erbumine""".split())
 
 @pytest.fixture(scope="module")
 def lib():
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     return load_counterions()
 
@@ -139,7 +139,7 @@ def test_every_library_pka_has_a_published_check(lib):
 def test_pka_matches_published_value(lib, cid):
     values, tolerances, source = PUBLISHED_PKA[cid]
     ion = lib.get(cid)
-    for ours, published, tol in zip(ion.pka, values, tolerances):
+    for ours, published, tol in zip(ion.pka, values, tolerances, strict=False):
         assert abs(ours - published) <= tol, f"{cid}: {ours} vs {published} ± {tol} ({source})"
 
 
@@ -159,7 +159,8 @@ CHECKED_ON_PAGES = {
     "hydrochloride": ([-5.9], 0.3, "'Sulfonation process' (exiraso.com) quoting pKa(aq) -5.9"),
     "hydrobromide": ([-9.0], 0.3, "University of Waterloo 'Acid Ionization Constants in Water at 25 °C' (about -9)"),
     "nitrate": ([-1.4], 0.05, "textbook table 'pKa values for some Lowry-Brønsted acids' (Table 3.3)"),
-    "phosphate": ([2.13, 7.20, 12.36], 0.05, "University of Sydney 'Ionisation Constants of Acids in Water Solution at 298 K'"),
+    "phosphate": ([2.13, 7.20, 12.36], 0.05,
+                  "University of Sydney 'Ionisation Constants of Acids in Water Solution at 298 K'"),
     "acetate": ([4.757], 0.01, "LibreTexts 'E5: Acid Dissociation Constants of Organics' (Martell & Smith)"),
     "lactate": ([3.86], 0.01, "University of Sydney 'Ionisation Constants of Acids in Water Solution at 298 K'"),
     "benzoate": ([4.20], 0.01, "University of Sydney 'Ionisation Constants of Acids in Water Solution at 298 K'"),
@@ -279,7 +280,7 @@ def test_count_and_required_ids(lib):
 
 
 def test_flag_vocabulary():
-    from saltplan.counterions import FLAGS
+    from saltplan.library.counterions import FLAGS
 
     required = {"sulfonate_ester_risk", "michael_acceptor", "nitrosamine_precursor",
                 "common_ion_gastric", "strongly_basic_solution", "renal_toxicity",
@@ -291,7 +292,7 @@ def test_flag_vocabulary():
 
 
 def test_every_flag_in_vocabulary(lib):
-    from saltplan.counterions import FLAGS
+    from saltplan.library.counterions import FLAGS
 
     for c in lib:
         assert set(c.flags) <= set(FLAGS), c.id
@@ -446,7 +447,7 @@ def test_every_broken_fixture_is_checked():
 
 @pytest.mark.parametrize("name", sorted(BROKEN))
 def test_broken_fixture_raises_with_location(name):
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     entry, field, fragment = BROKEN[name]
     path = FIXTURES / f"library_broken_{name}.yaml"
@@ -461,7 +462,7 @@ def test_broken_fixture_raises_with_location(name):
 
 
 def test_python_tag_is_not_executed(tmp_path):
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     marker = tmp_path / "executed"
     bad = tmp_path / "lib.yaml"
@@ -480,7 +481,7 @@ def _builtin_files():
 
 
 def test_duplicate_id_across_builtin_files_is_an_error(tmp_path):
-    from saltplan.counterions import build_library
+    from saltplan.library.counterions import build_library
 
     copy = tmp_path / "copy.yaml"
     shutil.copy(_builtin_files()[0], copy)
@@ -493,7 +494,7 @@ def test_duplicate_id_across_builtin_files_is_an_error(tmp_path):
 
 
 def test_user_library_overrides_and_adds(lib):
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     merged = load_counterions([SMALL])
     assert merged.hash != lib.hash
@@ -506,7 +507,7 @@ def test_user_library_overrides_and_adds(lib):
 
 
 def test_folder_as_user_library(tmp_path):
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     shutil.copy(SMALL, tmp_path / "inhouse.yaml")
     assert "trolamine" in load_counterions([tmp_path])
@@ -517,7 +518,7 @@ def test_folder_as_user_library(tmp_path):
 
 
 def test_hash_ignores_key_order_and_location_but_not_values(tmp_path):
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     data = yaml.safe_load(SMALL.read_text(encoding="utf-8"))
     shuffled = {"counterions": [dict(reversed(list(e.items()))) for e in reversed(data["counterions"])]}
@@ -534,13 +535,13 @@ def test_builtin_hash_is_stable_across_processes(lib):
     import subprocess
     import sys
 
-    out = subprocess.run([sys.executable, "-c", "from saltplan.counterions import load_counterions;"
+    out = subprocess.run([sys.executable, "-c", "from saltplan.library.counterions import load_counterions;"
                           "print(load_counterions().hash)"], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == lib.hash
 
 
 def test_load_is_cached_and_sees_edits(tmp_path):
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     assert load_counterions() is load_counterions()
     user = tmp_path / "inhouse.yaml"
@@ -555,7 +556,7 @@ def test_load_is_cached_and_sees_edits(tmp_path):
 def test_builtin_library_found_through_package_resources(monkeypatch, tmp_path, lib):
     """Installed layout: counterion_dir() prefers saltplan/_counterions (importlib.resources)."""
     import saltplan._data as data
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     # editable checkout: the top-level counterions/ folder of the repository
     assert data.counterion_dir() == Path(__file__).resolve().parent.parent / "counterions"

@@ -13,8 +13,8 @@ import math
 import statistics
 
 import pytest
-
 from handbook_pka import HANDBOOK
+
 from saltplan.errors import ParameterError, StructureError
 from saltplan.ionization import Site, Step, ionizable_sites, parse_measured, permanent_charges
 from saltplan.ionization.estimate import estimate_all

@@ -9,8 +9,8 @@ import json
 import math
 
 from hypothesis import HealthCheck, given, settings
-
 from molgen import drug_like_smiles, smiles_like
+
 from saltplan.errors import SaltplanError
 from saltplan.ionization import ionizable_sites
 

@@ -7,8 +7,8 @@ import pytest
 
 @pytest.fixture(scope="module")
 def objects():
-    from saltplan.plan import plan_salts
-    from saltplan.screen import design_screen
+    from saltplan.plan.planner import plan_salts
+    from saltplan.screen.design import design_screen
 
     # diphenhydramine (a tertiary-amine base of MW 255)
     plan = plan_salts("CN(C)CCOC(c1ccccc1)c1ccccc1", name="DPH-demo", dose_mg=10)
@@ -27,8 +27,8 @@ def test_plan_and_screen_render_inline(objects):
 
 
 def test_selection_renders_inline(objects, tmp_path):
-    from saltplan.demo_results import make_demo_results
-    from saltplan.select import evaluate_results
+    from saltplan.demo.results import make_demo_results
+    from saltplan.select.evaluate import evaluate_results
 
     _, design = objects
     results = tmp_path / "results.csv"

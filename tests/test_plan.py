@@ -11,7 +11,7 @@ import json
 import pytest
 
 from saltplan.errors import ParameterError, StructureError
-from saltplan.plan import plan_salts
+from saltplan.plan.planner import plan_salts
 
 DIPHENHYDRAMINE = "CN(C)CCOC(c1ccccc1)c1ccccc1"
 SERTRALINE = "CN[C@H]1CC[C@@H](c2ccc(Cl)c(Cl)c2)c2ccccc21"
@@ -338,8 +338,8 @@ def test_importing_the_plan_modules_is_cheap():
     import subprocess
     import sys
 
-    code = ("import sys, saltplan.plan, saltplan.cli.plan, saltplan.ranking, saltplan.assessment, "
-            "saltplan.caveats, saltplan.solubility, saltplan.stoichiometry; "
+    code = ("import sys, saltplan.plan.planner, saltplan.cli.plan, saltplan.plan.ranking, saltplan.plan.assessment, "
+            "saltplan.plan.caveats, saltplan.plan.solubility, saltplan.plan.stoichiometry; "
             "print(any(m == 'rdkit' or m.startswith('yaml') for m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"

@@ -1,4 +1,4 @@
-"""Ranking of counterion candidates (saltplan.ranking, data/ranking_weights.yaml).
+"""Ranking of counterion candidates (saltplan.plan.ranking, data/ranking_weights.yaml).
 
 Sources are named beside each check; measured pKa values are given so that these tests
 exercise the ranking, not the estimator.
@@ -10,8 +10,8 @@ import math
 import pytest
 
 from saltplan.errors import ParameterError
-from saltplan.plan import plan_salts
-from saltplan.ranking import load_ranking_config, precedence_score
+from saltplan.plan.planner import plan_salts
+from saltplan.plan.ranking import load_ranking_config, precedence_score
 
 # N,N-dimethylbenzylamine, pKa(BH+) 8.93 (CRC Handbook, from memory)
 BASE = ("CN(C)Cc1ccccc1", {"base": 8.93})

@@ -9,7 +9,6 @@ import csv
 import json
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults
@@ -112,7 +111,7 @@ def screened(tmp_path_factory):
     from click.testing import CliRunner
 
     from saltplan.cli import main
-    from saltplan.demo_results import make_demo_results
+    from saltplan.demo.results import make_demo_results
 
     base = tmp_path_factory.mktemp("screened")
     design_dir = base / "design"
@@ -147,7 +146,7 @@ def _results_variants(good: str) -> dict:
         "binary": (bytes(range(256)) * 8, ("utf-8",)),
         "latin1": ((header + "\n" + first + "\n").encode("utf-8") + b"caf\xe9\n", ("utf-8",)),
         "header_only": ((header + "\n").encode(), ("no well has an outcome",)),
-        "unknown_column": (("well,outcome,colour\nA1,crystalline,red\n").encode(), ("colour",)),
+        "unknown_column": ((b"well,outcome,colour\nA1,crystalline,red\n"), ("colour",)),
         "no_outcome_column": (b"well,form_label\nA1,A\n", ("outcome",)),
         "huge_field_2mb": (with_notes("x" * 2_000_000).encode(), ("field",)),
         "ragged_row": ((header + "\n" + first + ",extra,extra\n").encode(), ()),
@@ -361,7 +360,7 @@ def test_batch_bom_crlf_same_as_plain(cli, tmp_path):
 
 
 def test_batch_leaves_the_csv_field_limit_alone(tmp_path):
-    from saltplan.batch import run_batch
+    from saltplan.batch.run import run_batch
 
     csv.field_size_limit(131072)
     src = tmp_path / "in.csv"

@@ -105,7 +105,7 @@ def _html_md(folder: Path, html="report.html", md="report.md"):
 # ------------------------------------------------------------------ compound name
 @pytest.fixture(scope="module")
 def plain_plan_report(tmp_path_factory):
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
     from saltplan.reports import write_plan_report
 
     out = tmp_path_factory.mktemp("plain")
@@ -116,7 +116,7 @@ def plain_plan_report(tmp_path_factory):
 @pytest.mark.parametrize("case", sorted(HOSTILE))
 def test_compound_name_is_escaped_in_plan_report(tmp_path, monkeypatch, plain_plan_report, case):
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "0")
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
     from saltplan.reports import write_plan_report
 
     text = HOSTILE[case]
@@ -128,7 +128,7 @@ def test_compound_name_is_escaped_in_plan_report(tmp_path, monkeypatch, plain_pl
 
 @pytest.mark.parametrize("case", ["script", "attr_break", "md_link"])
 def test_compound_name_is_escaped_in_jupyter_fragment(case):
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     plain = plan_salts(API, name=PLAIN)._repr_html_()
     hostile = plan_salts(API, name=HOSTILE[case])._repr_html_()
@@ -138,7 +138,7 @@ def test_compound_name_is_escaped_in_jupyter_fragment(case):
 def test_name_from_a_mol_file_title_is_escaped(tmp_path, plain_plan_report):
     from rdkit import Chem
 
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
     from saltplan.reports import write_plan_report
 
     mol = Chem.MolFromSmiles(API)
@@ -169,7 +169,7 @@ def _library(tmp_path, name, liability):
 
 @pytest.fixture(scope="module")
 def plain_library_report(tmp_path_factory):
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
     from saltplan.reports import write_plan_report
 
     base = tmp_path_factory.mktemp("plainlib")
@@ -181,7 +181,7 @@ def plain_library_report(tmp_path_factory):
 @pytest.mark.parametrize("case", ["script", "img_onerror", "attr_break", "md_link", "md_table",
                                   "md_block", "jinja"])
 def test_library_entry_name_and_liability_are_escaped(tmp_path, plain_library_report, case):
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
     from saltplan.reports import write_plan_report
 
     text = HOSTILE[case]
@@ -210,7 +210,7 @@ def _solvent_library(tmp_path, name):
 
 def _screen_report(tmp_path, name):
     from saltplan.reports import write_plan_report
-    from saltplan.screen_output import screen_structure
+    from saltplan.screen.output import screen_structure
 
     lib = _solvent_library(tmp_path, name)
     design, _ = screen_structure(API, 500, solvent_library=str(lib), solvents=["ethanol"])
@@ -229,8 +229,8 @@ def test_solvent_names_are_escaped(tmp_path, case):
 # ------------------------------------------------------------------ results notes / labels
 @pytest.fixture(scope="module")
 def screened(tmp_path_factory):
-    from saltplan.demo_results import make_demo_results
-    from saltplan.screen_output import screen_structure
+    from saltplan.demo.results import make_demo_results
+    from saltplan.screen.output import screen_structure
 
     base = tmp_path_factory.mktemp("screened")
     design, _ = screen_structure(API, 500, out_dir=base / "design")
@@ -253,7 +253,7 @@ def _results_with(text: str, notes: str, label: str | None) -> str:
 
 
 def _decision(tmp_path, screened, notes, label=None):
-    from saltplan.select_report import select_and_record
+    from saltplan.reports.decision import select_and_record
 
     tmp_path.mkdir(parents=True, exist_ok=True)
     path = tmp_path / "results.csv"
@@ -342,8 +342,8 @@ def test_markup_in_python_is_reviewed():
         for line in path.read_text(encoding="utf-8").splitlines():
             if re.search(r"\bMarkup\(", line):
                 uses.append((path.name, line.strip()[:40]))
-    # batch_summary: histogram SVGs of counts with constant titles (no user text)
-    assert {u[0] for u in uses} <= {"batch_summary.py"}, uses
+    # reports/portfolio.py: histogram SVGs of counts with constant titles (no user text)
+    assert {u[0] for u in uses} <= {"portfolio.py"}, uses
 
 
 def test_chart_labels_with_markup_are_escaped():
@@ -352,9 +352,9 @@ def test_chart_labels_with_markup_are_escaped():
 
     names = [n for n in dir(charts) if not n.startswith("_")]
     assert names  # module present
-    from saltplan.plan import plan_salts
-
     import tempfile
+
+    from saltplan.plan.planner import plan_salts
 
     with tempfile.TemporaryDirectory() as tmp:
         lib = _library(Path(tmp), HOSTILE["script"], "liability")

@@ -10,7 +10,6 @@ import json
 import time
 
 import pytest
-
 from hostile import assert_refused
 
 # C60 fullerene (Ih); the test below checks with RDKit that it is 60 carbons in >= 31 rings

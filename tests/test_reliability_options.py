@@ -3,7 +3,6 @@ line naming the option or field) or 2 (usage error from click), leaving no outpu
 from __future__ import annotations
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults
@@ -114,8 +113,8 @@ _add("unknown option", ["plan", API, "--frobnicate"], 2, ("--frobnicate",))
 def screened(tmp_path_factory):
     import json
 
-    from saltplan.demo_results import make_demo_results
-    from saltplan.screen_output import screen_structure
+    from saltplan.demo.results import make_demo_results
+    from saltplan.screen.output import screen_structure
 
     base = tmp_path_factory.mktemp("screened")
     design, _ = screen_structure(API, 500, out_dir=base / "design")

@@ -9,7 +9,6 @@ from __future__ import annotations
 import json
 
 import pytest
-
 from hostile import files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults
@@ -31,8 +30,8 @@ def _assert_failed_cleanly(result):
 
 @pytest.fixture
 def screened(tmp_path):
-    from saltplan.demo_results import make_demo_results
-    from saltplan.screen_output import screen_structure
+    from saltplan.demo.results import make_demo_results
+    from saltplan.screen.output import screen_structure
 
     design, _ = screen_structure(API, 500, out_dir=tmp_path / "design")
     results = tmp_path / "results.csv"
@@ -46,14 +45,14 @@ LATE_FAILURES = {
     "plan_json": (lambda t, s: ["plan", API, "--out", t / "out"],
                   "saltplan.reports.render_plan_json"),
     "screen_template": (lambda t, s: ["screen", API, "--api-budget-mg", 500, "--out", t / "out"],
-                        "saltplan.screen_output.results_template_csv"),
+                        "saltplan.screen.output.results_template_csv"),
     "select_json": (lambda t, s: ["select", s[0], s[1], "--out", t / "out"],
-                    "saltplan.select_report.render_decision_json"),
+                    "saltplan.reports.decision.render_decision_json"),
     "select_markdown": (lambda t, s: ["select", s[0], s[1], "--out", t / "out"],
-                        "saltplan.select_report.render_decision_markdown"),
+                        "saltplan.reports.decision.render_decision_markdown"),
     "batch_summary": (lambda t, s: ["batch", t / "in.csv", "--out", t / "out" / "table.csv",
                                     "--summary", t / "out" / "summary.html", "--quiet"],
-                      "saltplan.batch_summary.render_summary"),
+                      "saltplan.reports.portfolio.render_summary"),
     "sites_svg": (lambda t, s: ["sites", API, "--svg", t / "out" / "sites.svg"],
                   "saltplan.ionization.report.draw_sites_svg"),
 }

@@ -26,8 +26,8 @@ import sys
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
 from molgen import drug_like_smiles, hostile_text, random_text, salted_smiles, smiles_like
+
 from saltplan.errors import SaltplanError
 
 settings.register_profile("reliability", derandomize=True, deadline=None, database=None,
@@ -57,7 +57,7 @@ def _finite_numbers(value, path="$"):
 @given(drug_like_smiles())
 def test_sites_and_plan_never_crash_on_drug_like(smiles):
     from saltplan.ionization.report import sites_report
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     rep = sites_report(smiles)
     for s in rep.sites:
@@ -77,7 +77,7 @@ def test_sites_and_plan_never_crash_on_drug_like(smiles):
 @FEW
 @given(drug_like_smiles())
 def test_screen_never_crashes_on_drug_like(smiles):
-    from saltplan.screen_output import screen_structure
+    from saltplan.screen.output import screen_structure
 
     try:
         design, _ = screen_structure(smiles, 500)
@@ -94,8 +94,8 @@ def test_screen_never_crashes_on_drug_like(smiles):
 @given(st.one_of(random_text, smiles_like, hostile_text))
 def test_random_text_gives_a_result_or_a_saltplan_error(text):
     from saltplan.ionization.report import sites_report
-    from saltplan.plan import plan_salts
-    from saltplan.screen_output import screen_structure
+    from saltplan.plan.planner import plan_salts
+    from saltplan.screen.output import screen_structure
 
     def screen(t):
         return screen_structure(t, 500)[0]
@@ -141,7 +141,7 @@ def test_drawn_salts_give_the_same_parent(pair):
 def test_plan_json_is_byte_identical(smiles):
     os.environ["SOURCE_DATE_EPOCH"] = "1700000000"
     try:
-        from saltplan.plan import plan_salts
+        from saltplan.plan.planner import plan_salts
 
         a = _strict_json(plan_salts(smiles, name="x", dose_mg=100).to_dict())
         b = _strict_json(plan_salts(smiles, name="x", dose_mg=100).to_dict())
@@ -169,7 +169,7 @@ def test_only_timestamps_depend_on_the_clock(cli, monkeypatch):
 
 
 def test_screen_and_select_outputs_byte_identical(cli, tmp_path, monkeypatch):
-    from saltplan.demo_results import make_demo_results
+    from saltplan.demo.results import make_demo_results
 
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "0")
     smi = "CN(C)CCc1ccc(Cl)cc1"

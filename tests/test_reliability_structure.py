@@ -8,7 +8,6 @@ from __future__ import annotations
 import time
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 C60 = ("c12c3c4c5c1c1c6c7c2c2c8c3c3c9c4c4c%10c5c5c1c1c6c6c%11c7c2c2c7c8c3c3c8c9c4c4c9c%10"

@@ -10,10 +10,8 @@ interpreter. Every file here is generated in tmp_path; all contents are invented
 from __future__ import annotations
 
 import time
-from pathlib import Path
 
 import pytest
-
 from hostile import assert_refused, files_under
 
 API = "CN(C)CCc1ccc(Cl)cc1"   # invented test base; screens with the defaults
@@ -90,7 +88,7 @@ def screened(tmp_path_factory):
     from click.testing import CliRunner
 
     from saltplan.cli import main
-    from saltplan.demo_results import make_demo_results
+    from saltplan.demo.results import make_demo_results
 
     base = tmp_path_factory.mktemp("screened")
     design_dir = base / "design"

@@ -8,13 +8,21 @@ import xml.etree.ElementTree as ET
 from html.parser import HTMLParser
 
 import pytest
+import report_fixtures as fx
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import report_fixtures as fx
-from saltplan.reports import (render_plan_html, render_plan_json, render_plan_markdown,
-                              render_plan_fragment, repr_html, write_plan_report)
-from saltplan.reports import charts, drawing, platemap
+from saltplan.reports import (
+    charts,
+    drawing,
+    platemap,
+    render_plan_fragment,
+    render_plan_html,
+    render_plan_json,
+    render_plan_markdown,
+    repr_html,
+    write_plan_report,
+)
 from saltplan.reports.context import MissingKey
 from saltplan.reports.markdown import md_escape
 
@@ -424,8 +432,8 @@ def test_plate_rejects_duplicate_well(screen):
 @pytest.fixture(scope="module")
 def real():
     """plan_salts + design_screen on the test structure (measured pyridine pKa, invented)."""
-    from saltplan.plan import plan_salts
-    from saltplan.screen import design_screen
+    from saltplan.plan.planner import plan_salts
+    from saltplan.screen.design import design_screen
 
     plan = plan_salts(fx.SMILES, name="TST-7 (test compound)", dose_mg=100, measured={13: 5.2})
     return plan, design_screen(plan, 400)
@@ -487,7 +495,7 @@ def test_real_screen_plate_matches_wells(real, real_html):
 
 
 def test_real_reports_deterministic(real):
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     plan, screen = real
     again = plan_salts(fx.SMILES, name="TST-7 (test compound)", dose_mg=100, measured={13: 5.2})
@@ -499,7 +507,7 @@ def test_real_reports_deterministic(real):
 
 
 def test_real_no_site_plan():
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     # an aryl ester-ether without acidic or basic group (general chemistry: neither esters
     # nor aryl ethers ionize in water)
@@ -512,7 +520,7 @@ def test_real_no_site_plan():
 
 
 def test_real_vial_screen_has_no_plate(real):
-    from saltplan.screen import design_screen
+    from saltplan.screen.design import design_screen
 
     vial = design_screen(real[0], 2000, scale="vial").to_dict()
     html = render_plan_html(real[0], vial)

@@ -15,7 +15,6 @@ import subprocess
 from pathlib import Path
 
 import pytest
-
 import report_fixtures as fx
 
 pytestmark = [pytest.mark.slow, pytest.mark.browser]
@@ -109,7 +108,7 @@ def report_html():
 def _real_plan_or_fixture() -> dict:
     """The real planner's dict when it runs here, else the hand-made one."""
     try:
-        from saltplan.plan import plan_salts
+        from saltplan.plan.planner import plan_salts
 
         return plan_salts(fx.SMILES, name="TST-7 (test compound)", dose_mg=100,
                           measured={13: 5.2}).to_dict()

@@ -13,14 +13,14 @@ import re
 from dataclasses import dataclass
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from saltplan.errors import BudgetError, ParameterError, SaltplanError
-from saltplan.screen import (MODES, PLATE_WELLS, counterion_amounts, design_screen,
-                             equivalents_for, write_screen)
-from saltplan.screen_output import (RESULTS_COLUMNS, plate_csv, results_template_csv,
-                                    worksheet_csv)
-from saltplan.solvent_selection import select_solvents
-from saltplan.solvents import load_solvents
+from saltplan.library.solvents import load_solvents
+from saltplan.screen import MODES, PLATE_WELLS, counterion_amounts, design_screen, equivalents_for, write_screen
+from saltplan.screen.output import RESULTS_COLUMNS, plate_csv, results_template_csv, worksheet_csv
+from saltplan.screen.solvent_choice import select_solvents
 
 
 @dataclass(frozen=True)
@@ -161,9 +161,6 @@ def test_antisolvent_volume_and_partner():
     assert w.antisolvent == "heptane"           # library pairing (common practice)
     assert w.antisolvent_ul == pytest.approx(2 * 200.0)   # 25 mg/mL -> 200 µL, ratio 2
 
-
-from hypothesis import given, settings
-from hypothesis import strategies as st
 
 
 @settings(max_examples=60, deadline=None)
@@ -438,7 +435,7 @@ def test_results_template_has_the_select_columns_and_one_row_per_well():
     assert tuple(rows[0]) == RESULTS_COLUMNS
     assert [r[0] for r in rows[1:]] == [w.well for w in d.wells]
     # the select step reads the template once an outcome is filled in
-    from saltplan import select_results
+    from saltplan.select import results as select_results
     rows[1][RESULTS_COLUMNS.index("outcome")] = "crystalline"
     filled = "".join(",".join(r) + "\n" for r in rows)
     parsed = select_results.parse_results(filled, d.to_dict())
@@ -451,13 +448,13 @@ def test_same_input_same_bytes(tmp_path):
     b = write_screen(design(), tmp_path / "b")
     assert [p.name for p in a] == ["worksheet.csv", "plate.csv", "design.json",
                                    "results-template.csv"]
-    for pa, pb in zip(a, b):
+    for pa, pb in zip(a, b, strict=True):
         assert pa.read_bytes() == pb.read_bytes()
     json.loads((tmp_path / "a" / "design.json").read_text(encoding="utf-8"))
 
 
 def test_no_partial_files_on_failure(tmp_path, monkeypatch):
-    import saltplan.screen_output as out
+    import saltplan.screen.output as out
 
     def boom(_design):
         raise RuntimeError("rendering failed")
@@ -502,7 +499,7 @@ def test_screen_cli_usage_errors_exit_2(cli):
 # --------------------------------------------------------------------------- real library
 @pytest.fixture(scope="module")
 def real_lib():
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     return load_counterions()
 
@@ -544,7 +541,7 @@ HX_SMILES = "CN1CCN(CC1)Cc1ccc(cc1)C(=O)Nc1ccccc1"
 
 @pytest.fixture(scope="module")
 def real_plan():
-    from saltplan.plan import plan_salts
+    from saltplan.plan.planner import plan_salts
 
     return plan_salts(HX_SMILES, name="HX-204 (invented)")
 

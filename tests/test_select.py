@@ -17,9 +17,9 @@ import random
 import pytest
 
 from saltplan.errors import ParameterError, ResultsError
-from saltplan.select import evaluate_results, load_design
-from saltplan.select_criteria import hygroscopicity_class, load_thresholds, required_solubility_mg_ml
-from saltplan.select_results import parse_results, read_results
+from saltplan.select.criteria import hygroscopicity_class, load_thresholds, required_solubility_mg_ml
+from saltplan.select.evaluate import evaluate_results, load_design
+from saltplan.select.results import parse_results, read_results
 
 HEADER = ("well,counterion,stoichiometry,solvent,mode,outcome,form_label,melting_onset_c,"
           "weight_gain_80rh_pct,solubility_mg_ml,saturated_ph,stoichiometry_found,"
@@ -188,7 +188,7 @@ def test_bad_well_ids(design, text, words):
 
 
 def test_vial_ids(design):
-    design["wells"][0]["well"] = "V01"  # vial scale ids (saltplan.screen_layout)
+    design["wells"][0]["well"] = "V01"  # vial scale ids (saltplan.screen.layout)
     res = parse_results(_csv("v1,crystalline,A,,,,,,,"), design)
     assert res.observations[0].well == "V01"
 
@@ -494,7 +494,7 @@ def _nasty_selection(design):
 
 
 def test_html_is_self_contained_and_escaped(design):
-    from saltplan.select_report import render_decision_html
+    from saltplan.reports.decision import render_decision_html
 
     html = render_decision_html(_nasty_selection(design))
     assert html.startswith("<!DOCTYPE html>")
@@ -505,9 +505,9 @@ def test_html_is_self_contained_and_escaped(design):
 
 
 def test_markdown_neutralizes_user_text(design):
-    from saltplan.select_report import md_escape, render_decision_markdown
-
     import re
+
+    from saltplan.reports.decision import md_escape, render_decision_markdown
 
     md = render_decision_markdown(_nasty_selection(design))
     assert not re.search(r"(?<!\\)\]\(", md)  # no unescaped "](": no link
@@ -520,7 +520,7 @@ def test_markdown_neutralizes_user_text(design):
 
 
 def test_record_labels_invented_data(design, fixtures_dir):
-    from saltplan.select_report import render_decision_html, render_decision_markdown
+    from saltplan.reports.decision import render_decision_html, render_decision_markdown
 
     sel = evaluate_results(design, fixtures_dir / "results_invented_marker.csv")
     assert "INVENTED DATA" in render_decision_html(sel)
@@ -530,7 +530,7 @@ def test_record_labels_invented_data(design, fixtures_dir):
 
 
 def test_record_joins_plan_design_observations(design, good):
-    from saltplan.select_report import render_decision_markdown
+    from saltplan.reports.decision import render_decision_markdown
 
     md = render_decision_markdown(evaluate_results(design, good))
     for part in ("TST-001", "tosylate", "sulfonate + alcohol", "needles", "Not reported** (1): H2",
@@ -539,7 +539,7 @@ def test_record_joins_plan_design_observations(design, good):
 
 
 def test_write_decision_record_all_or_nothing(design, good, tmp_path, monkeypatch):
-    import saltplan.select_report as rep
+    import saltplan.reports.decision as rep
 
     sel = evaluate_results(design, good)
     written = rep.write_decision_record(sel, tmp_path / "rec")
@@ -557,7 +557,7 @@ def test_write_decision_record_all_or_nothing(design, good, tmp_path, monkeypatc
 
 
 def test_record_bytes_deterministic(design, good, monkeypatch):
-    from saltplan.select_report import render_decision_html, render_decision_markdown
+    from saltplan.reports.decision import render_decision_html, render_decision_markdown
 
     monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
     a, b = evaluate_results(design, good), evaluate_results(fixture_design(), good)
@@ -566,7 +566,7 @@ def test_record_bytes_deterministic(design, good, monkeypatch):
 
 
 def test_record_renders_no_lead(design, fixtures_dir):
-    from saltplan.select_report import render_decision_html, render_decision_markdown
+    from saltplan.reports.decision import render_decision_html, render_decision_markdown
 
     sel = evaluate_results(design, fixtures_dir / "results_no_crystals.csv")
     assert "No lead" in render_decision_html(sel) and "No lead" in render_decision_markdown(sel)
@@ -635,7 +635,7 @@ def test_cli_dose_option(cli, design_dir, good, tmp_path):
 
 # --------------------------------------------------------------------------- demo results
 def test_demo_results_are_labelled_deterministic_and_valid(design):
-    from saltplan.demo_results import HEADER_LINE, make_demo_results
+    from saltplan.demo.results import HEADER_LINE, make_demo_results
 
     text = make_demo_results(design)
     assert text.splitlines()[0] == HEADER_LINE == "# INVENTED DATA for the saltplan demo — not measurements"
@@ -649,7 +649,7 @@ def test_demo_results_are_labelled_deterministic_and_valid(design):
 def _plan_for_screen():
     """A hand-written plan dict in the Plan.to_dict() shape (DEVELOPERS.md), so that the real
     screen designer can run while the planner is written in parallel."""
-    from saltplan.counterions import load_counterions
+    from saltplan.library.counterions import load_counterions
 
     lib = load_counterions()
     cands = [
@@ -672,8 +672,8 @@ def _plan_for_screen():
 
 
 def _round_trip(design, folder, tmp_path):
-    from saltplan.demo_results import make_demo_results
-    from saltplan.select_report import select_and_record
+    from saltplan.demo.results import make_demo_results
+    from saltplan.reports.decision import select_and_record
 
     template = (folder / "results-template.csv").read_text()
     # the untouched template has the right columns, but nothing is reported yet
@@ -695,9 +695,9 @@ def _round_trip(design, folder, tmp_path):
 
 
 def test_screen_design_round_trip(tmp_path):
-    """A design from saltplan.screen.design_screen: template → results → selection → record."""
-    from saltplan.screen import design_screen
-    from saltplan.screen_output import write_screen
+    """A design from saltplan.screen.design.design_screen: template → results → selection → record."""
+    from saltplan.screen.design import design_screen
+    from saltplan.screen.output import write_screen
 
     plan, lib = _plan_for_screen()
     design = design_screen(plan, 400, library=lib)
@@ -709,7 +709,7 @@ def test_screen_design_round_trip(tmp_path):
 
 def test_planner_round_trip(tmp_path):
     """The same loop from a structure through the planner."""
-    from saltplan.screen_output import screen_structure
+    from saltplan.screen.output import screen_structure
 
     design, _ = screen_structure("CN1CCC(CC1)Oc1ccc(cc1)C(=O)NC1CC1", 400,
                                  out_dir=tmp_path / "s", name="TST-003", dose_mg=50)
@@ -726,7 +726,9 @@ def test_any_valid_results_evaluate_traceably():
     design = fixture_design()
     samples = [w["well"] for w in design["wells"] if w["kind"] == "sample"]
     controls = [w["well"] for w in design["wells"] if w["kind"] == "control"]
-    num = lambda lo, hi: st.one_of(st.none(), st.floats(lo, hi, allow_nan=False).map(lambda v: round(v, 2)))
+    def num(lo, hi):
+        return st.one_of(st.none(), st.floats(lo, hi, allow_nan=False).map(lambda v: round(v, 2)))
+
     row = st.fixed_dictionaries({
         "outcome": st.sampled_from(["crystalline", "crystalline", "amorphous", "oil", "gel",
                                     "clear_solution"]),
@@ -796,7 +798,7 @@ def _chrome_dom(html: str, tmp_path) -> dict:
 @pytest.mark.slow
 @pytest.mark.browser
 def test_record_loads_offline_in_chromium(design, good, tmp_path):
-    from saltplan.select_report import render_decision_html
+    from saltplan.reports.decision import render_decision_html
 
     html = render_decision_html(evaluate_results(design, good))
     assert "Content-Security-Policy" in html

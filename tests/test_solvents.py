@@ -7,7 +7,7 @@ import pytest
 import yaml
 
 from saltplan.errors import SolventLibraryError
-from saltplan.solvents import load_solvents
+from saltplan.library.solvents import load_solvents
 
 # ICH Q3C(R8), Impurities: Guideline for Residual Solvents (2021), Table 2 (class 2,
 # Option-1 concentration limit in ppm) -- from memory, spot-checked against open copies of

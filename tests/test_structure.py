@@ -212,3 +212,25 @@ def test_cli_version_and_help(cli):
     assert result.exit_code == 0 and __version__ in result.stdout
     result = cli("--help")
     assert result.exit_code == 0 and "planning aid" in result.stdout
+
+
+def test_salt_former_table_agrees_with_the_counterion_library():
+    """structure/ names stripped salt formers from its own table (it does not load the
+    library); the table must hold exactly the library's organic salt formers, by id."""
+    from saltplan.library import load_counterions
+    from saltplan.structure.parent import _library_components
+
+    expected: dict[str, str] = {}
+    for ion in load_counterions():
+        for frag in ion.smiles.split("."):
+            mol = Chem.MolFromSmiles(frag)
+            if mol is not None and any(a.GetSymbol() == "C" for a in mol.GetAtoms()):
+                expected.setdefault(Chem.MolToSmiles(mol), ion.id)
+    table = _library_components()
+    assert table == expected, sorted(set(table.items()) ^ set(expected.items()))
+
+
+def test_supplied_tosylate_is_named_from_the_table():
+    # a tosylate is not in the general component table; its name comes from the library's
+    parent = read_structure("CN(C)CCc1ccc(OCc2ccc(OCc3ccccc3)cc2)cc1.Cc1ccc(S(=O)(=O)O)cc1")
+    assert [c.name for c in parent.stripped] == ["tosylate"]

@@ -7,10 +7,10 @@ import pytest
 
 pytest.importorskip("starlette")
 from starlette.testclient import TestClient  # noqa: E402
+from test_reliability_injection import HOSTILE  # noqa: E402
 
 from saltplan.web import create_app  # noqa: E402
 from saltplan.web.app import MAX_BODY_BYTES  # noqa: E402
-from test_reliability_injection import HOSTILE  # noqa: E402
 
 # an invented tertiary-amine test base (aliphatic amine pKa around 9-10, CRC Handbook range)
 API = "CN(C)CCc1ccc(Cl)cc1"

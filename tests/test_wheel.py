@@ -62,8 +62,8 @@ def test_wheel_holds_the_package_data(wheel_venv):
     py, env_dir, env, tmp = wheel_venv
     code = (
         "import sys, json, saltplan, saltplan._data as d;"
-        "sys.path[:] = [p for p in sys.path if not p.startswith(%r)];"
-        "print(json.dumps({'pkg': saltplan.__file__, 'ions': str(d.counterion_dir())}))" % str(ROOT)
+        f"sys.path[:] = [p for p in sys.path if not p.startswith({str(ROOT)!r})];"
+        "print(json.dumps({'pkg': saltplan.__file__, 'ions': str(d.counterion_dir())}))"
     )
     out = _run([str(py), "-c", code], cwd=tmp, env=env)
     assert out.returncode == 0, out.stderr[-2000:]
@@ -85,3 +85,20 @@ def test_wheel_smoke_commands(wheel_venv):
     out = _run([str(exe), "demo", "--out", str(demo_out)], cwd=tmp, env=env)
     assert out.returncode == 0, out.stderr[-3000:]
     assert any(demo_out.rglob("report.html")), "demo wrote no HTML report from the wheel"
+
+
+def test_wheel_lists_every_data_file_and_template_of_the_package(wheel_venv):
+    """Each non-Python file of saltplan/ (YAML tables, Jinja2 templates, READMEs) and each
+    counterion library file is inside the wheel, at the same place."""
+    import zipfile
+
+    _py, _env_dir, _env, tmp = wheel_venv
+    wheel = next(tmp.glob("saltplan-*.whl"))
+    inside = set(zipfile.ZipFile(wheel).namelist())
+    package = ROOT / "saltplan"
+    wanted = {p.relative_to(ROOT).as_posix() for p in package.rglob("*")
+              if p.is_file() and p.suffix not in (".py", ".pyc") and "__pycache__" not in p.parts}
+    wanted |= {f"saltplan/_counterions/{p.name}" for p in (ROOT / "counterions").glob("*.yaml")}
+    assert any(w.endswith("templates/decision.html.j2") for w in wanted)
+    assert any(w.endswith("templates/portfolio.html.j2") for w in wanted)
+    assert sorted(wanted - inside) == []

@@ -38,7 +38,7 @@ def table(rows: list[list[str]], headers: list[str]) -> str:
     """Plain fixed-width table for the terminal."""
     cells = [headers] + [[str(c) for c in r] for r in rows]
     widths = [max(len(r[i]) for r in cells) for i in range(len(headers))]
-    lines = ["  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in cells]
+    lines = ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=False)).rstrip() for r in cells]
     lines.insert(1, "  ".join("-" * w for w in widths))
     return "\n".join(lines)
 

@@ -73,7 +73,7 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
     Exit status: 0 if every row was planned, 1 if any row failed (or the input could not
     be read), 2 for a usage error. A one-line count goes to stderr.
     """
-    from ..batch import run_batch
+    from ..batch.run import run_batch
 
     progress = None
     if not quiet and sys.stderr.isatty():

@@ -31,7 +31,7 @@ def _pka_text(values) -> str:
 @common_options
 def list_(role, libraries, as_json):
     """List the counterions, ordered by id."""
-    from ..counterions import load_counterions
+    from ..library.counterions import load_counterions
 
     lib = load_counterions(libraries)
     entries = lib.by_role(role) if role else tuple(lib)
@@ -54,7 +54,7 @@ def list_(role, libraries, as_json):
 @common_options
 def show(counterion_id, libraries, as_json):
     """Show every field of one counterion, with sources."""
-    from ..counterions import load_counterions
+    from ..library.counterions import load_counterions
 
     c = load_counterions(libraries).get(counterion_id)
     if as_json:
@@ -66,7 +66,7 @@ def show(counterion_id, libraries, as_json):
                     f"{c.ion_mw:.2f} g/mol, charge {c.charge:+d})"),
         ("role", f"{c.role} (salts of {'basic' if c.role == 'acid' else 'acidic'} drugs)"),
     ]
-    for value, source in zip(c.pka, c.pka_sources):
+    for value, source in zip(c.pka, c.pka_sources, strict=True):
         lines.append(("pKa", f"{value:.2f}  [literature: {source}]"))
     note = f"  ({c.pka_note})" if c.pka_note else ""
     lines.append(("pKa for ΔpKa", f"{c.pka_for_salt:.2f}{note}"))
@@ -102,7 +102,7 @@ def check(paths, libraries, as_json):
 
     Exits 1 with a one-line message naming file, entry and field of the first problem.
     """
-    from ..counterions import check_counterions
+    from ..library.counterions import check_counterions
 
     report = check_counterions(tuple(libraries) + tuple(paths))
     if as_json:

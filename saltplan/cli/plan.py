@@ -14,7 +14,7 @@ def _parse_measured(values):
     try:
         from ..ionization import parse_measured
     except ImportError:  # estimator package incomplete: the batch reader knows the same syntax
-        from ..batch_input import parse_measured_text
+        from ..batch.sources import parse_measured_text
 
         return parse_measured_text("; ".join(values))
     return parse_measured(list(values))
@@ -50,7 +50,7 @@ def _parse_measured(values):
 def plan(structure, name, dose_mg, route, pkas, libraries, weights, min_delta_pka,
          melting_point, s0, salt_solubility, top, out_dir, max_atoms, as_json):
     """Rank counterions and stoichiometries for a salt of SMILES|FILE, with reasons."""
-    from ..plan import plan_salts
+    from ..plan.planner import plan_salts
 
     result = plan_salts(structure, name=name, dose_mg=dose_mg, route=route,
                         measured=_parse_measured(pkas), libraries=list(libraries) or None,

@@ -85,7 +85,7 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
     controls. Risky combinations are dropped and listed unless --include-risky. Over budget
     or over 96 wells is an error that says what to cut.
     """
-    from ..screen_output import screen_structure
+    from ..screen.output import screen_structure
 
     design, written = screen_structure(
         structure, api_budget_mg, out_dir=out_dir, name=name, dose_mg=dose_mg,
@@ -129,7 +129,7 @@ def solvents():
 @common_options
 def list_solvents(path, as_json):
     """List the solvents with ICH Q3C(R8) class and limit, bp, ε and Kamlet–Taft α, β."""
-    from ..solvents import load_solvents
+    from ..library.solvents import load_solvents
 
     lib = load_solvents(path)
     if as_json:

@@ -25,7 +25,7 @@ def select(design_dir, results, out_dir, thresholds, dose_mg, as_json):
     solvate/hydrate status; tier 3 open questions. Writes the decision record (HTML,
     Markdown, JSON) to --out; nothing is written when the input is refused.
     """
-    from ..select_report import select_and_record
+    from ..reports.decision import select_and_record
 
     selection, written = select_and_record(design_dir, results, out_dir, thresholds, dose_mg)
     if as_json:

@@ -73,7 +73,7 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
 
 
 def _run_demo(out: Path) -> dict[str, Any]:
-    from ..plan import plan_salts
+    from ..plan.planner import plan_salts
 
     written: list[str] = []
     summary: dict[str, Any] = {"programme": programme_name(), "compounds": []}
@@ -131,8 +131,9 @@ def _write_plan(plan, folder: Path, screen=None) -> list[Path]:
     try:
         from ..reports import write_plan_report
     except ImportError:  # reports not available: JSON only
-        from .._io import write_text_atomic
         import json
+
+        from .._io import write_text_atomic
 
         return [write_text_atomic(folder / "plan.json", json.dumps(plan.to_dict(), indent=2) + "\n")]
     return list(write_plan_report(plan, folder, screen=screen))
@@ -142,14 +143,14 @@ def _design(plan, c: DemoCompound):
     if plan.verdict["code"] != "salt_candidates":
         return None
     try:
-        from ..screen import design_screen
+        from ..screen.design import design_screen
     except ImportError:
         return None
     return design_screen(plan, api_budget_mg=c.api_budget_mg)
 
 
 def _write_screen(design, folder: Path) -> list[Path]:
-    from ..screen import write_screen
+    from ..screen.output import write_screen
 
     return list(write_screen(design, folder))
 
@@ -157,7 +158,7 @@ def _write_screen(design, folder: Path) -> list[Path]:
 def _batch(out: Path) -> list[str]:
     import pandas as pd
 
-    from ..batch import run_batch
+    from ..batch.run import run_batch
 
     rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
             for c in load_programme()]
@@ -168,9 +169,9 @@ def _batch(out: Path) -> list[str]:
 
 def _select(design, folder: Path) -> list[str]:
     try:
-        from ..demo_results import make_demo_results
-        from ..select import evaluate_results
-        from ..select_report import write_decision_record
+        from ..reports.decision import write_decision_record
+        from ..select.evaluate import evaluate_results
+        from .results import make_demo_results
     except ImportError:
         return []
     from .._io import write_text_atomic

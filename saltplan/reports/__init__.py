@@ -182,7 +182,7 @@ def repr_html(obj: Any) -> str:
     if "wells" in d and "plan" in d:
         return render_plan_fragment(d["plan"], d)
     try:
-        from ..select_report import render_decision_html
+        from .decision import render_decision_html
     except ImportError:
         render_decision_html = None
     if render_decision_html is not None and hasattr(obj, "to_dict") and (

@@ -30,7 +30,7 @@ def thresholds_of(plan: dict) -> dict:
     found = inputs.get("thresholds") or plan.get("thresholds")
     if found:
         return dict(found)
-    from ..assessment import DEFAULT_THRESHOLDS
+    from ..plan.assessment import DEFAULT_THRESHOLDS
 
     out = DEFAULT_THRESHOLDS.to_dict()
     out["source"] = f"{out['source']} (defaults; the plan did not record its thresholds)"

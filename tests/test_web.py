@@ -1,6 +1,7 @@
 """The browser workbench (saltplan/web) driven in-process by Starlette's TestClient."""
 from __future__ import annotations
 
+import html
 import re
 
 import pytest
@@ -177,10 +178,10 @@ def test_hostile_names_escaped_everywhere(client, case):
     url = _compound(client, name=text)
     pages = [client.get("/").text, client.get(url).text, client.get(url + "/screen").text,
              client.get("/", params={"q": text}).text]
-    for html in pages:
-        assert "<script>alert" not in html
-        assert "onerror=alert" not in html.replace("onerror=alert(1)&gt;", "")
-        assert not re.search(r"<svg onload", html)
+    for page in pages:
+        assert "<script>alert" not in page
+        assert "onerror=alert" not in page.replace("onerror=alert(1)&gt;", "")
+        assert not re.search(r"<svg onload", page)
     if case == "jinja":                                   # not evaluated as a template
         assert "{{ 7*7 }}" in pages[1]
 
@@ -228,3 +229,90 @@ def test_serve_command_token_beyond_loopback(monkeypatch, cli):
     assert result.exit_code == 0
     assert re.search(r"token: \S{20,}", result.output)
     assert is_loopback("127.0.0.1") and is_loopback("::1") and not is_loopback("0.0.0.0")
+
+
+def _screened(c):
+    url = _compound(c)
+    r = c.post(url + "/screen", data={"csrf_token": _tok(c), "budget_mg": "800"})
+    assert r.status_code == 200 and "sp-plate" in r.text
+    wells = list(dict.fromkeys(re.findall(r'action="[^"]*/results/well/([A-H][0-9]{1,2})"',
+                                          c.get(url + "/results").text)))
+    assert len(wells) >= 6
+    return url, wells
+
+
+GOOD = {"outcome": "crystalline", "form_label": "A", "melting_onset_c": "181",
+        "weight_gain_80rh_pct": "0.4", "stoichiometry_found": "1:1"}
+
+
+def _save(c, url, well, version, **values):
+    return c.post(f"{url}/results/well/{well}", headers={"hx-request": "true"},
+                  data={"csrf_token": _tok(c), "version": str(version), **values})
+
+
+def test_results_entry_and_decision(client):
+    url, wells = _screened(client)
+    assert client.get(url + "/decision").text.count('class="error"') == 1   # nothing yet
+    for w in wells[:3]:
+        r = _save(client, url, w, 0, **GOOD)
+        assert r.headers["x-saltplan-status"] == "200" and "saved (version 1)" in r.text
+    r = client.get(url + "/decision")
+    assert 'id="lead"' in r.text and "Open questions" in r.text
+    lead = re.search(r'<dd id="lead">([^<]*)<', r.text).group(1)
+    assert lead != "none"
+    rec = client.get(url + "/decision/download/decision.md")
+    assert rec.status_code == 200 and "attachment" in rec.headers["content-disposition"]
+    assert lead.split("/")[0] in rec.text
+    csv_text = client.get(url + "/decision/download/results.csv").text
+    assert csv_text.count("\n") == 4 and csv_text.startswith("well,outcome")
+
+
+def test_bad_well_value_same_message_as_results_file(client):
+    from saltplan.errors import ResultsError
+    from saltplan.select.results import parse_results
+
+    url, wells = _screened(client)
+    r = _save(client, url, wells[0], 0, outcome="crystalline", melting_onset_c="hot")
+    assert r.headers["x-saltplan-status"] == "422"
+    shown = html.unescape(re.search(r'role="alert"[^>]*>([^<]*)<', r.text).group(1))
+    design = client.app.state.workbench.store.get(url.rsplit("/", 1)[1]).screen_dict
+    with pytest.raises(ResultsError) as info:
+        parse_results(f"well,outcome,melting_onset_c\n{wells[0]},crystalline,hot\n", design)
+    assert info.value.message in shown
+    assert 'value="hot"' in r.text                      # what was typed is kept
+    r = _save(client, url, wells[0], 0, outcome="purple")
+    assert r.headers["x-saltplan-status"] == "422" and "not recognised" in r.text
+
+
+def test_two_tabs_same_well_second_refused_nothing_lost(client):
+    url, wells = _screened(client)
+    w = wells[0]
+    first = _save(client, url, w, 0, **GOOD)               # tab 1, opened at version 0
+    assert first.headers["x-saltplan-status"] == "200"
+    second = _save(client, url, w, 0, outcome="oil", notes="tab two")   # tab 2, also version 0
+    assert second.headers["x-saltplan-status"] == "409"
+    assert "saved elsewhere" in second.text and "nothing was overwritten" in second.text
+    assert 'value="tab two"' in second.text                # tab 2's values still in its form
+    page = client.get(url + "/results").text
+    form = page[page.index(f'id="well-{w}"'):]
+    assert "<option selected>crystalline</option>" in form[:3000]    # tab 1's save kept
+    again = _save(client, url, w, 1, outcome="oil", notes="tab two")  # after reload: accepted
+    assert again.headers["x-saltplan-status"] == "200" and "version 2" in again.text
+
+
+def test_results_file_upload(client):
+    url, wells = _screened(client)
+    body = "well,outcome,form_label\n" + "".join(f"{w},crystalline,A\n" for w in wells[:2])
+    r = client.post(url + "/results/upload", data={"csrf_token": _tok(client)},
+                    files={"file": ("r.csv", body.encode(), "text/csv")})
+    assert r.status_code == 200 and "2 wells taken" in r.text
+    bad = "well,outcome\nZ99,crystalline\n"
+    r = client.post(url + "/results/upload", data={"csrf_token": _tok(client)},
+                    files={"file": ("../../etc/r.csv", bad.encode(), "text/csv")})
+    assert r.status_code == 422 and "Z99" in r.text and "/etc" not in r.text
+
+
+def test_results_need_a_screen(client):
+    url = _compound(client)
+    assert client.get(url + "/results").status_code == 404
+    assert "design the screen first" in client.get(url + "/decision").text

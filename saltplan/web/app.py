@@ -16,6 +16,7 @@ from ..errors import SaltplanError
 from .chem import MAX_STRUCTURE_CHARS, matches, parent_from_text
 from .security import CSRF_FIELD, BodyLimit, SecurityHeaders, TokenGate, csrf_ok
 from .store import Store
+from .wells import FIELDS, Conflict, WellBook, not_ready
 
 HERE = Path(__file__).parent
 #: largest request body [bytes] (a structure file, a results file, a portfolio)
@@ -23,6 +24,7 @@ MAX_BODY_BYTES = 5_000_000
 #: form limits handed to python-multipart
 MAX_FIELDS, MAX_FILES = 60, 1
 _CID = re.compile(r"^c[0-9]{1,9}$")
+_OUTCOMES = ("crystalline", "amorphous", "oil", "gel", "clear_solution")
 ROUTES_OF_ADMIN = ("oral", "parenteral", "inhalation", "topical", "other")
 
 
@@ -160,6 +162,7 @@ def create_app(token: str | None = None) -> Starlette:
             try:
                 item.screen_form = _screen_form(form, item)
                 item.screen_dict = _design(item, item.screen_form)
+                item.wells = WellBook()
             except SaltplanError as exc:
                 error = exc.one_line()
             except ValueError as exc:
@@ -171,6 +174,120 @@ def create_app(token: str | None = None) -> Starlette:
                        status=422 if error and not request.headers.get("hx-request") else 200,
                        body=_body(item) if item.screen_dict and not error else None,
                        ions=_ions(item))
+
+    def screened(request: Request):
+        item = wb.compound(request)
+        if item.screen_dict is None:
+            raise HTTPException(404, "design the screen first: this compound has no screen yet")
+        if item.wells is None:
+            item.wells = WellBook()
+        return item
+
+    def well_ctx(item, well: dict, values=None, version=None, error=None, saved=False):
+        rec = item.wells.get(str(well["well"]))
+        return {"w": well, "values": rec.values if values is None else values,
+                "version": rec.version if version is None else version, "error": error,
+                "saved": saved, "fid": "well-" + str(well["well"])}
+
+    async def results_page(request: Request):
+        item = screened(request)
+        wells = [well_ctx(item, w) for w in item.screen_dict["wells"]]
+        return wb.page(request, "results.html.j2", c=item, wells=wells, outcomes=_OUTCOMES,
+                       upload_error=None, loaded=None)
+
+    async def results_upload(request: Request):
+        item = screened(request)
+        form = await wb.form(request)
+        upload = form.get("file")
+        error, loaded = None, None
+        if upload is None or not getattr(upload, "filename", ""):
+            error = "choose a results file (CSV) to upload"
+        else:
+            data = await upload.read(MAX_BODY_BYTES + 1)
+            try:
+                loaded = item.wells.load_file(item.screen_dict, data, _safe_stem(upload.filename))
+            except SaltplanError as exc:
+                error = exc.one_line()
+        wells = [well_ctx(item, w) for w in item.screen_dict["wells"]]
+        return wb.page(request, "results.html.j2", status=422 if error else 200, c=item,
+                       wells=wells, outcomes=_OUTCOMES, upload_error=error, loaded=loaded)
+
+    async def well_save(request: Request):
+        item = screened(request)
+        name = request.path_params["well"]
+        well = next((w for w in item.screen_dict["wells"] if str(w["well"]) == name), None)
+        if well is None:
+            raise HTTPException(404, "no such well in this screen")
+        form = await wb.form(request)
+        values = {f: str(form.get(f) or "")[:2000] for f in FIELDS}
+        try:
+            version = int(str(form.get("version") or "0"))
+        except ValueError:
+            version = -1
+        status = 200
+        try:
+            rec = item.wells.save(item.screen_dict, name, values, version)
+            ctx = well_ctx(item, well, saved=True)
+            del rec
+        except Conflict as exc:
+            ctx = well_ctx(item, well, values=values, version=version, error=str(exc))
+            status = 409
+        except SaltplanError as exc:
+            ctx = well_ctx(item, well, values=values, version=version, error=exc.one_line())
+            status = 422
+        if request.headers.get("hx-request"):
+            # htmx swaps 2xx only: the refusal is shown in place, the status says so
+            resp = wb.page(request, "well_form.html.j2", c=item, outcomes=_OUTCOMES, **ctx)
+            resp.headers["x-saltplan-status"] = str(status)
+            return resp
+        if status != 200:
+            wells = [ctx if w["well"] == well["well"] else well_ctx(item, w)
+                     for w in item.screen_dict["wells"]]
+            return wb.page(request, "results.html.j2", status=status, c=item, wells=wells,
+                           outcomes=_OUTCOMES, upload_error=None, loaded=None)
+        return RedirectResponse(f"/c/{item.id}/results#well-{name}", status_code=303)
+
+    def selection_of(item):
+        from ..select import evaluate_results
+        from ..select.results import parse_results
+
+        problem = not_ready(item.wells)
+        if problem:
+            raise problem
+        results = parse_results(item.wells.results_csv(item.screen_dict), item.screen_dict,
+                                origin="workbench results")
+        return evaluate_results(item.screen_dict, results,
+                                dose_mg=(item.inputs or {}).get("dose_mg"))
+
+    async def decision_page(request: Request):
+        item = screened(request)
+        try:
+            sel = selection_of(item).to_dict()
+            error = None
+        except SaltplanError as exc:
+            sel, error = None, exc.one_line()
+        return wb.page(request, "decision.html.j2", c=item, sel=sel, error=error)
+
+    async def decision_download(request: Request):
+        from ..reports.decision import render_decision_html, render_decision_markdown
+
+        item = screened(request)
+        kind = request.path_params["kind"]
+        try:
+            sel = selection_of(item)
+        except SaltplanError as exc:
+            raise HTTPException(409, exc.one_line()) from None
+        stem = _safe_stem(item.name)
+        if kind == "decision.html":
+            body, mt = render_decision_html(sel), "text/html"
+        elif kind == "decision.md":
+            body, mt = render_decision_markdown(sel), "text/markdown"
+        elif kind == "results.csv":
+            body, mt = item.wells.results_csv(item.screen_dict), "text/csv"
+        else:
+            raise HTTPException(404, "no such download")
+        return Response(body, media_type=mt, headers={
+            "content-disposition": f'attachment; filename="{stem}-{kind}"'})
 
     async def download(request: Request):
         from ..reports import render_plan_html, render_plan_json, render_plan_markdown
@@ -207,6 +324,11 @@ def create_app(token: str | None = None) -> Starlette:
         Route("/c/{cid}/inputs", compound_inputs, methods=["POST"]),
         Route("/c/{cid}/screen", screen_page, methods=["GET", "POST"]),
         Route("/c/{cid}/download/{kind}", download),
+        Route("/c/{cid}/results", results_page),
+        Route("/c/{cid}/results/upload", results_upload, methods=["POST"]),
+        Route("/c/{cid}/results/well/{well}", well_save, methods=["POST"]),
+        Route("/c/{cid}/decision", decision_page),
+        Route("/c/{cid}/decision/download/{kind}", decision_download),
         Route("/report.css", report_css),
         Mount("/static", StaticFiles(directory=str(HERE / "static")), name="static"),
     ]

@@ -21,6 +21,7 @@ class Compound:
     plan_dict: dict | None = None
     screen_dict: dict | None = None
     screen_form: dict[str, Any] = field(default_factory=dict)
+    wells: Any = None                  # web.wells.WellBook of the current screen
 
 
 class Store:

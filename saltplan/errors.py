@@ -64,3 +64,45 @@ class ResultsError(SaltplanError, ValueError):
 
 class OutputFileError(SaltplanError, OSError):
     """An output file or folder cannot be written (not a folder, no permission, disk full)."""
+
+
+class Interrupted(KeyboardInterrupt):
+    """The run was stopped by SIGINT (Ctrl-C) or SIGTERM (see :func:`saltplan._io.stop_on_signals`).
+
+    A :class:`KeyboardInterrupt`, so code that already handles Ctrl-C handles SIGTERM too.
+    ``done`` says how far the run got (batch: rows done), ``written`` lists the files that
+    were put in place before the signal was acted on (normally none).
+    """
+
+    def __init__(self, signum: int, *, done: str | None = None, written=()):
+        self.signum = int(signum)
+        self.done = done
+        self.written = list(written)
+        super().__init__(self.signame)
+
+    @property
+    def signame(self) -> str:
+        import signal
+
+        try:
+            return signal.Signals(self.signum).name
+        except ValueError:  # pragma: no cover - only SIGINT and SIGTERM are handled
+            return f"signal {self.signum}"
+
+    @property
+    def exit_code(self) -> int:
+        """128 + signal number, as a shell reports a process stopped by that signal."""
+        return 128 + self.signum
+
+    def one_line(self) -> str:
+        import os
+
+        written = [p for p in self.written if os.path.exists(p)]
+        text = f"interrupted by {self.signame}"
+        if self.done:
+            text += f" after {self.done}"
+        if written:
+            text += f"; the outputs were already written ({len(written)} files)"
+        else:
+            text += "; nothing was written"
+        return text

@@ -96,6 +96,35 @@ CLASSES = {
     ("limits", "test_underflowing_solubility_estimate_is_a_clear_error"): "heavy-atom cap and --max-atoms",
     ("limits", "test_default_heavy_atom_cap"): "heavy-atom cap and --max-atoms",
     ("limits", "test_cap_counts_the_api_not_its_counterions"): "heavy-atom cap and --max-atoms",
+    ("csv", "test_helper_quotes_hostile_text_and_reads_it_back"):
+        "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
+    ("csv", "test_helper_keeps_numbers"): "CSV formula injection: negative numbers stay numbers",
+    ("csv", "test_helper_round_trips_quote_like_text"):
+        "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
+    ("csv", "test_every_csv_writer_goes_through_the_helper"):
+        "CSV formula injection: every CSV writer uses the shared helper (source audit)",
+    ("csv", "test_batch_csv_neutralized_library"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_batch_csv_neutralized_cli"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_batch_json_keeps_the_original_text"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_screen_csvs_neutralized_library"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_screen_and_demo_results_csvs_cli"):
+        "CSV formula injection: batch table (library, CLI), screen CSVs, demo results",
+    ("csv", "test_results_template_read_back_unquotes"):
+        "CSV formula injection: =, +, -, @, tab, CR cells quoted (OWASP), read back unchanged",
+    ("signals", "test_batch_jobs_2_stops_cleanly_on_signal"):
+        "SIGTERM / SIGINT during batch --jobs 2 (real CLI): workers stopped, no temporary, exit 143 / 130",
+    ("signals", "test_parent_killed_by_sigkill_takes_its_workers_along"):
+        "SIGKILL of the batch parent: no orphaned workers",
+    ("signals", "test_library_run_batch_unwinds_on_signal"):
+        "SIGINT / SIGTERM through the library (run_batch, jobs 2): no temporary, no worker left",
+    ("signals", "test_commands_stop_cleanly_on_signal"):
+        "SIGTERM / SIGINT during screen, select, demo, batch: one line, nothing written",
+    ("signals", "test_signal_while_outputs_are_renamed_waits_for_the_set"):
+        "signal while outputs are renamed: the set completes, the line says so",
     ("properties", "test_para_nitro_never_raises_acid_pka"):
         "chemical sanity: para-nitro on phenols / benzoic acids (pairs)",
     ("properties", "test_para_donor_never_lowers_aryl_base_pka"):

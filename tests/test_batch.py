@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import json
 import os
+import re
 import time
 import zlib
 from pathlib import Path
@@ -450,9 +451,13 @@ def test_summary_counts_escaping_and_determinism(tmp_path):
     run_batch(src, tmp_path / "o2.csv", summary=second, evaluator=standin_plan)
     html = first.read_text(encoding="utf-8")
     assert first.read_bytes() == second.read_bytes()
-    assert "<script>" not in html and "&lt;script&gt;" in html
-    assert html.count("<svg") == 2
-    assert "http://" not in html.replace("http://www.w3.org/", "")
+    assert "<script>alert(1)" not in html and "&lt;script&gt;alert(1)" in html
+    assert html.count("<script>") == 1            # the page's own table script, nothing else
+    assert html.count('class="sp-structure"') == 2  # thumbnails of the two readable rows
+    assert html.count("<svg") == 4                   # + the two histograms (no margin plot:
+                                                     # the stand-in planner sets no thresholds)
+    # namespace names (xmlns='http://…') are identifiers, never fetched
+    assert "http://" not in re.sub(r"""xmlns(:\w+)?=['"][^'"]*['"]""", "", html)
     assert "https://" not in html and " src=" not in html
     assert ">salt_candidates</td><td class=\"n\">2<" in html
     assert ">hydrochloride</td><td class=\"n\">1<" in html  # listed once, first once

@@ -67,9 +67,27 @@ class _Structure(HTMLParser):
         self.text.append(data)
 
 
+def _without_page_scripts(html: str) -> str:
+    """Drop the page's own inline scripts: those whose sha256 its CSP lists (and only those).
+
+    Any other script, e.g. one that user text turned into markup, stays and is flagged.
+    """
+    import base64
+    import hashlib
+
+    policy = re.search(r'http-equiv="Content-Security-Policy" content="([^"]*)"', html)
+    allowed = set(re.findall(r"'sha256-([^']+)'", policy.group(1))) if policy else set()
+
+    def _drop(m: re.Match) -> str:
+        digest = base64.b64encode(hashlib.sha256(m.group(1).encode("utf-8")).digest()).decode()
+        return "" if digest in allowed else m.group(0)
+
+    return re.sub(r"<script>(.*?)</script>", _drop, html, flags=re.S)
+
+
 def _parse(html: str) -> _Structure:
     p = _Structure()
-    p.feed(html)
+    p.feed(_without_page_scripts(html))
     p.close()
     return p
 

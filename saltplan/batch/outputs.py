@@ -7,7 +7,10 @@ Every writer writes into a temporary file beside the target and renames it only 
 Formats, chosen by the extension of the output path:
 
 ``.csv``
-    UTF-8, a header row, ``\\n`` line ends; empty cells for missing values.
+    UTF-8, a header row, ``\\n`` line ends; empty cells for missing values. Text cells
+    starting with ``=``, ``+``, ``-``, ``@``, tab or CR get a leading single quote so that
+    a spreadsheet never runs them as formulas (:func:`saltplan._io.spreadsheet_safe`);
+    numbers such as ``-1.2`` are written as they are.
 ``.json``
     One JSON array of row objects (keys in column order), written a row at a time.
 ``.jsonl``
@@ -22,7 +25,6 @@ Formats, chosen by the extension of the output path:
 from __future__ import annotations
 
 import contextlib
-import csv
 import json
 import math
 import os
@@ -66,14 +68,20 @@ class _TempTarget:
         if self.path.is_dir():
             raise ParameterError("output path is a directory", file=str(self.path))
         self.path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=".part",
-                                   dir=self.path.parent)
-        os.close(fd)
-        self.tmp = Path(tmp)
+        from .._io import uninterrupted
+
+        with uninterrupted():  # a signal here must not leave a temporary nobody knows of
+            fd, tmp = tempfile.mkstemp(prefix=f".{self.path.name}.", suffix=".part",
+                                       dir=self.path.parent)
+            os.close(fd)
+            self.tmp = Path(tmp)
         os.chmod(self.tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
 
     def replace(self) -> Path:
+        from .._io import published
+
         os.replace(self.tmp, self.path)
+        published(self.path)
         return self.path
 
     def remove(self) -> None:
@@ -125,7 +133,10 @@ class _TextWriter:
 
 class CsvWriter(_TextWriter):
     def start(self):
-        self.csv = csv.writer(self.fh, lineterminator="\n")
+        from .._io import SafeCsvWriter
+
+        # text cells that a spreadsheet would run as a formula get a leading quote
+        self.csv = SafeCsvWriter(self.fh, lineterminator="\n")
         self.csv.writerow(self.columns)
 
     def write(self, rows):

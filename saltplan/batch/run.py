@@ -17,14 +17,15 @@ This module orchestrates; it holds no chemistry.
 """
 from __future__ import annotations
 
+import contextlib
 import math
 import threading
 from collections import deque
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Generator, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
-from ..errors import ParameterError, SaltplanError
+from ..errors import Interrupted, ParameterError, SaltplanError
 from .sources import ColumnSpec, Record, column_spec, mark_duplicates, open_source
 
 if TYPE_CHECKING:
@@ -159,6 +160,8 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
             if who not in concerned:
                 concerned.append(who)
     verdict = plan.get("verdict") or {}
+    worst = min(caveats.items(), default=None)          # most severe first (sorted keys)
+    minimum = (plan.get("thresholds") or {}).get("likely")
     return {
         "smiles": parent.get("smiles"),
         "supplied_as": parent.get("supplied_as"),
@@ -174,7 +177,15 @@ def summarize_plan(plan: dict, top: int = 3) -> dict[str, Any]:
             for c in shown),
         "caveats": "; ".join(f"{code} ({sev}): {', '.join(who)}"
                              for (_o, code, sev), who in sorted(caveats.items())),
-        "_top_ids": [c["counterion"] for c in shown],   # for the summary; not a column
+        # for the summary page; not columns
+        "_top_ids": [c["counterion"] for c in shown],
+        "_top": [f"{c['counterion']} {c.get('stoichiometry', '1:1')}" for c in shown],
+        "_basic_unc": bases[0].get("uncertainty") if bases else None,
+        "_acidic_unc": acids[0].get("uncertainty") if acids else None,
+        "_margin": (round(shown[0]["delta_pka"] - minimum, 2)
+                    if shown and minimum is not None else None),
+        "_serious": (f"{worst[0][1]} ({worst[0][2]}): {', '.join(worst[1])}"
+                     if worst is not None else None),
     }
 
 
@@ -190,19 +201,54 @@ def evaluate_chunk(chunk: Sequence[Record], settings: Settings) -> list[dict[str
 
 
 # --------------------------------------------------------------------------- engines
-def _run_local(chunks, settings) -> Iterator[list[dict]]:
+def _run_local(chunks, settings) -> Generator[list[dict], None, None]:
     for chunk in chunks:
         yield evaluate_chunk(chunk, settings)
 
 
-def _run_pool(chunks, settings, jobs: int) -> Iterator[list[dict]]:
+def _worker_init() -> None:
+    """Set up a pool worker: the parent alone handles Ctrl-C and stops the workers (a
+    terminal sends SIGINT to the whole process group); SIGTERM ends a worker at once; on
+    Linux a worker also ends when its parent dies, even by SIGKILL (no orphans)."""
+    import signal
+    import sys
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGTERM)  # PR_SET_PDEATHSIG
+        except (OSError, AttributeError):  # pragma: no cover - prctl is always there on Linux
+            pass
+
+
+def _stop_pool(pool) -> None:
+    """Stop a pool at once: pending chunks cancelled, running workers terminated."""
+    procs = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in procs:
+        with contextlib.suppress(Exception):
+            proc.terminate()
+    for proc in procs:
+        with contextlib.suppress(Exception):
+            proc.join(5)
+            if proc.is_alive():  # pragma: no cover - SIGTERM is not caught by workers
+                proc.kill()
+                proc.join(5)
+
+
+def _run_pool(chunks, settings, jobs: int) -> Generator[list[dict], None, None]:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor
 
     # the platform's default start method: "fork" on Linux (an evaluator defined in a
     # script or notebook works as is), "spawn" on macOS and Windows
-    pool = ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context())
+    pool = ProcessPoolExecutor(max_workers=jobs, mp_context=multiprocessing.get_context(),
+                               initializer=_worker_init)
     pending: deque = deque()
+    finished = False
     try:
         for chunk in chunks:
             pending.append(pool.submit(evaluate_chunk, chunk, settings))
@@ -210,8 +256,12 @@ def _run_pool(chunks, settings, jobs: int) -> Iterator[list[dict]]:
                 yield pending.popleft().result()
         while pending:
             yield pending.popleft().result()
+        finished = True
     finally:
-        pool.shutdown(wait=True, cancel_futures=True)
+        if finished:
+            pool.shutdown(wait=True)
+        else:  # interrupted, failed or abandoned: do not wait for the running chunks
+            _stop_pool(pool)
 
 
 def _dask_client(scheduler):
@@ -233,7 +283,7 @@ def _dask_client(scheduler):
                              field="scheduler") from None
 
 
-def _run_dask(chunks, settings, scheduler) -> Iterator[list[dict]]:
+def _run_dask(chunks, settings, scheduler) -> Generator[list[dict], None, None]:
     client, own = _dask_client(scheduler)
     pending: deque = deque()
     try:
@@ -241,16 +291,17 @@ def _run_dask(chunks, settings, scheduler) -> Iterator[list[dict]]:
         for chunk in chunks:
             pending.append(client.submit(evaluate_chunk, chunk, settings, pure=False))
             if len(pending) >= _WINDOW_PER_WORKER * slots:
-                future = pending.popleft()
-                yield future.result()
-                future.release()
+                rows = pending[0].result()  # stays in `pending` until done (cancelled if not)
+                pending.popleft().release()
+                yield rows
         while pending:
-            future = pending.popleft()
-            yield future.result()
-            future.release()
+            rows = pending[0].result()
+            pending.popleft().release()
+            yield rows
     finally:
-        for future in pending:
-            future.cancel()
+        if pending:  # interrupted or failed: cancel the submitted work on the cluster
+            with contextlib.suppress(Exception):
+                client.cancel(list(pending))
         if own:
             client.close()
 
@@ -286,7 +337,7 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
                   libraries: Sequence[str] | None = None, top: int = 3,
                   progress: Callable[[int, int | None], None] | None = None,
                   evaluator: Callable[..., Any] | None = None,
-                  ) -> Iterator[list[dict[str, Any]]]:
+                  ) -> Generator[list[dict[str, Any]], None, None]:
     """Evaluate a table of candidates, yielding the output rows chunk by chunk.
 
     Same parameters as :func:`evaluate_many`. Each item is a list of row dicts (keys
@@ -309,11 +360,14 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
     else:
         results = _run_local(chunks, settings)
     done = 0
-    for rows in results:
-        done += len(rows)
-        if progress is not None:
-            progress(done, source.estimated_rows)
-        yield rows
+    try:
+        for rows in results:
+            done += len(rows)
+            if progress is not None:
+                progress(done, source.estimated_rows)
+            yield rows
+    finally:
+        results.close()  # an abandoned run stops its workers now, not when collected
 
 
 def evaluate_many(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column: str = "smiles",
@@ -407,7 +461,8 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
               summary: str | Path | None = None, **options: Any) -> BatchRun:
     """Evaluate and stream the rows to ``out`` (.csv, .json, .jsonl or .xlsx).
 
-    ``summary``: also write the HTML summary there. Options as for :func:`evaluate_many`.
+    ``summary``: also write the HTML summary there; ``source_label`` names the input on it
+    (default: the input file's name). Other options as for :func:`evaluate_many`.
     Files are written to temporary names and renamed only when the run completes, so a
     failed run leaves no partial output.
     """
@@ -418,7 +473,8 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     from .summary import SummaryBuilder
 
     is_frame = hasattr(dataframe_or_path, "columns")
-    label = "DataFrame" if is_frame else Path(dataframe_or_path).name
+    label = options.pop("source_label", None) or (
+        "a table passed in memory" if is_frame else Path(dataframe_or_path).name)
     targets = [Path(out).resolve()] + ([Path(summary).resolve()] if summary is not None else [])
     if not is_frame and Path(dataframe_or_path).resolve() in targets:
         raise ParameterError("the output would replace the input file", file=str(out))
@@ -429,7 +485,10 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     user_progress = options.pop("progress", None)
     first_call = [True]
 
+    estimated = [None]
+
     def progress(done, total):
+        estimated[0] = total
         # refuse an oversized XLSX after the first chunk rather than at the sheet's end
         # (the row estimate counts lines, so allow it a little slack)
         cap = getattr(writer, "max_rows", None)
@@ -439,18 +498,28 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
         if user_progress is not None:
             user_progress(done, total)
 
+    stream = iter_evaluate(dataframe_or_path, progress=progress, **options)
+    done = 0
     try:
-        for rows in iter_evaluate(dataframe_or_path, progress=progress, **options):
+        for rows in stream:
             writer.write(rows)
             builder.add(rows)
+            done += len(rows)
         pending = [writer]
         if summary is not None:
             from .outputs import PendingFile
 
             pending.append(PendingFile(summary, render_summary(builder.result())))
-        outputs = tuple(str(p.commit()) for p in pending)
-    except BaseException:
+        from .._io import uninterrupted
+
+        with uninterrupted():  # all outputs or none, whenever a signal comes
+            outputs = tuple(str(p.commit()) for p in pending)
+    except BaseException as exc:
+        stream.close()
         writer.abort()
+        if isinstance(exc, Interrupted) and exc.done is None:
+            total = estimated[0]
+            exc.done = (f"{done:,} of about {total:,} rows" if total else f"{done:,} rows")
         raise
     res = builder.result()
     return BatchRun(rows=res.rows, failed=res.failed, duplicates=res.duplicates,

@@ -14,6 +14,8 @@ from typing import Any
 #: histogram bins [pKa units]: 1-unit bins from -2 to 16 (values outside go to the end bins)
 BIN_LOW, BIN_HIGH, BIN_WIDTH = -2.0, 16.0, 1.0
 MAX_FAILED_SHOWN = 20
+#: compounds listed one per row in the summary's table (the table output has them all)
+MAX_TABLE_ROWS = 500
 _NBINS = int((BIN_HIGH - BIN_LOW) / BIN_WIDTH)
 
 
@@ -35,6 +37,7 @@ class BatchSummary:
     counterions: tuple[tuple[str, int, int], ...]   # (id, times listed, times first)
     failed_rows: tuple[tuple[int, str, str], ...]   # (row, id, error), the first few
     top: int = 3
+    compounds: tuple[dict[str, Any], ...] = ()       # the first MAX_TABLE_ROWS rows, see below
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -46,6 +49,7 @@ class BatchSummary:
             "counterions": [{"counterion": c, "listed": n, "first": f}
                             for c, n, f in self.counterions],
             "failed_rows": [{"row": r, "id": i, "error": e} for r, i, e in self.failed_rows],
+            "compounds": [dict(c) for c in self.compounds],
         }
 
 
@@ -64,10 +68,13 @@ class SummaryBuilder:
     listed: Counter = field(default_factory=Counter)
     first: Counter = field(default_factory=Counter)
     failed_rows: list = field(default_factory=list)
+    compounds: list = field(default_factory=list)
 
     def add(self, rows) -> None:
         for row in rows:
             self.rows += 1
+            if len(self.compounds) < MAX_TABLE_ROWS:
+                self.compounds.append(_compound(row))
             if row.get("duplicate_of") is not None:
                 self.duplicates += 1
             if row.get("error"):
@@ -93,4 +100,16 @@ class SummaryBuilder:
                             key=lambda t: (-t[1], -t[2], t[0])))
         return BatchSummary(self.source, self.rows, self.failed, self.duplicates, verdicts,
                             tuple(self.basic), tuple(self.acidic), ions,
-                            tuple(self.failed_rows), self.top)
+                            tuple(self.failed_rows), self.top, tuple(self.compounds))
+
+
+def _compound(row: dict[str, Any]) -> dict[str, Any]:
+    """One line of the summary's compound table (values as in the batch row)."""
+    return {
+        "row": row.get("row"), "id": row.get("id") or "", "name": row.get("name") or "",
+        "smiles": row.get("smiles"), "verdict": "error" if row.get("error") else row.get("verdict"),
+        "most_basic_pka": row.get("most_basic_pka"), "most_basic_unc": row.get("_basic_unc"),
+        "most_acidic_pka": row.get("most_acidic_pka"), "most_acidic_unc": row.get("_acidic_unc"),
+        "top": list(row.get("_top") or ()), "margin": row.get("_margin"),
+        "serious": row.get("_serious"), "error": row.get("error"),
+    }

@@ -47,6 +47,19 @@ class SaltplanGroup(click.Group):
         return getattr(mod, attr)
 
     def invoke(self, ctx):
+        from .._io import stop_on_signals
+        from ..errors import Interrupted
+
+        # SIGINT / SIGTERM: the run unwinds (workers stopped, temporaries removed), one
+        # line says how far it got, exit 128 + signal number (130, 143)
+        try:
+            with stop_on_signals():
+                return self._invoke(ctx)
+        except Interrupted as exc:
+            click.echo(f"saltplan: {exc.one_line()}", err=True)
+            ctx.exit(exc.exit_code)
+
+    def _invoke(self, ctx):
         from ..errors import SaltplanError
 
         try:

@@ -60,12 +60,16 @@ def run_demo(out_dir: str | Path) -> dict[str, Any]:
         raise OutputFileError(f"cannot write output: {exc.strerror or exc}", file=str(out)) from None
     try:
         summary = _run_demo(stage)
+        from .._io import published, uninterrupted
+
         moved = []
-        for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
-            target = out / rel
-            target.parent.mkdir(parents=True, exist_ok=True)
-            (stage / rel).replace(target)
-            moved.append(str(target))
+        with uninterrupted():  # a signal waits until the whole demo is in place
+            for rel in sorted(Path(p).relative_to(stage) for p in summary["written"]):
+                target = out / rel
+                target.parent.mkdir(parents=True, exist_ok=True)
+                (stage / rel).replace(target)
+                published(target)
+                moved.append(str(target))
         summary["written"] = moved
         return summary
     finally:
@@ -163,7 +167,8 @@ def _batch(out: Path) -> list[str]:
     rows = [{"id": c.code, "name": c.role, "smiles": c.smiles, "dose_mg": c.dose_mg}
             for c in load_programme()]
     run = run_batch(pd.DataFrame(rows), out / "portfolio.csv", summary=out / "portfolio-summary.html",
-                    dose_column="dose_mg", id_column="id", name_column="name")
+                    dose_column="dose_mg", id_column="id", name_column="name",
+                    source_label="programme.yaml (the invented Heron programme)")
     return [str(p) for p in run.outputs]
 
 

@@ -14,7 +14,6 @@ well; DVS and solubility only on one well per form), but they are not a model of
 """
 from __future__ import annotations
 
-import csv
 import hashlib
 import io
 
@@ -68,7 +67,9 @@ def make_demo_results(design) -> str:
     buf.write(HEADER_LINE + "\n")
     buf.write("# Invented by saltplan.demo_results.make_demo_results from the design; every value "
               "is invented.\n")
-    writer = csv.writer(buf, lineterminator="\n")
+    from .._io import SafeCsvWriter
+
+    writer = SafeCsvWriter(buf, lineterminator="\n")
     writer.writerow(COLUMNS)
     characterized: set[tuple[str, str]] = set()
     for w in d["wells"]:

@@ -6,8 +6,6 @@ so a failure leaves no partial file. Same design → same bytes (the JSON carrie
 """
 from __future__ import annotations
 
-import csv
-import io
 import json
 from pathlib import Path
 from typing import Any
@@ -35,10 +33,9 @@ def _design(design) -> dict[str, Any]:
 
 
 def _csv(rows: list[list[str]]) -> str:
-    buf = io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerows(rows)
-    return buf.getvalue()
+    from .._io import csv_text
+
+    return csv_text(rows)  # spreadsheet-safe cells (no formula injection)
 
 
 def _cell(value, decimals) -> str:

@@ -48,6 +48,7 @@ from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any
 
+from .._io import spreadsheet_text
 from ..errors import ResultsError
 
 #: marker a comment line carries in an invented (demo) results file
@@ -422,7 +423,8 @@ def parse_results(data: bytes | str, design, origin: str = "results") -> Results
             if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
                 raise ResultsError(f"{len(cells)} cells but the header has {len(header)} columns",
                                    file=origin, row=row)
-            record = dict(zip(header, (c for c in cells), strict=False))
+            # a cell the tool neutralized for spreadsheets ("'=...") reads as its text
+            record = dict(zip(header, (spreadsheet_text(c) for c in cells), strict=False))
             obs = _row(record, wells, seen, row, origin, delimiter != ",")
             if obs is not None:
                 found[obs.well] = obs

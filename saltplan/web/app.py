@@ -418,36 +418,17 @@ def _design(item, f: dict) -> dict:
 
 
 def _worksheet_csv(item) -> str:
-    import csv
-    import io
+    from .._io import csv_text
 
     wells = item.screen_dict.get("wells", [])
-    out = io.StringIO()
-    if wells:
-        keys = [k for k, v in wells[0].items() if not isinstance(v, (dict, list))]
-        w = csv.DictWriter(out, fieldnames=keys, extrasaction="ignore", lineterminator="\n")
-        w.writeheader()
-        for row in wells:
-            w.writerow({k: _csv_safe(row.get(k)) for k in keys})
-    return out.getvalue()
-
-
-def _csv_safe(value):
-    text = "" if value is None else str(value)
-    return "'" + text if text[:1] in ("=", "+", "-", "@", "\t", "\r") and not _is_num(text) else text
-
-
-def _is_num(text):
-    try:
-        float(text)
-        return True
-    except ValueError:
-        return False
+    if not wells:
+        return ""
+    keys = [k for k, v in wells[0].items() if not isinstance(v, (dict, list))]
+    return csv_text([keys, *([row.get(k) for k in keys] for row in wells)])
 
 
 def _body(item) -> str:
     """The report body (the report templates' partial) for the plan and screen."""
-    from ..reports import _context, html_environment
+    from ..reports import render_plan_body
 
-    ctx = _context(item.plan_dict, item.screen_dict)
-    return html_environment().get_template("partials/plan_body.html.j2").render(**ctx)
+    return render_plan_body(item.plan_dict, item.screen_dict)

@@ -12,9 +12,7 @@ def parent_from_text(text: str, name: str | None = None):
     uploaded in the browser. Text is never taken as a file name (``read_structure`` would)."""
     from rdkit import Chem
 
-    from ..structure import read_structure
-    from ..structure._rdkit import rdkit_messages
-    from ..structure.reading import check_smiles_text
+    from ..structure import check_smiles_text, rdkit_messages, read_structure
 
     text = (text or "").replace("\r\n", "\n").replace("\r", "\n")
     if len(text) > MAX_STRUCTURE_CHARS:

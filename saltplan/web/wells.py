@@ -7,11 +7,10 @@ a second tab saving from an older version is refused, and neither value is lost.
 """
 from __future__ import annotations
 
-import csv
-import io
 import threading
 from dataclasses import dataclass, field
 
+from .._io import csv_text
 from ..errors import ResultsError
 
 #: the fields a well's form offers (results-file column names)
@@ -38,11 +37,7 @@ class WellRecord:
 
 
 def _one_row_csv(well: str, values: dict[str, str]) -> str:
-    out = io.StringIO()
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(("well", *FIELDS))
-    w.writerow((well, *(values.get(f, "") for f in FIELDS)))
-    return out.getvalue()
+    return csv_text([("well", *FIELDS), (well, *(values.get(f, "") for f in FIELDS))])
 
 
 def validate(design: dict, well: str, values: dict[str, str]) -> dict[str, str]:
@@ -93,14 +88,13 @@ class WellBook:
         return len(results.observations)
 
     def results_csv(self, design: dict) -> str:
-        out = io.StringIO()
-        w = csv.writer(out, lineterminator="\n")
-        w.writerow(("well", *FIELDS))
+        """The observed wells as a results file (spreadsheet-safe cells)."""
+        rows: list[tuple] = [("well", *FIELDS)]
         for well in design["wells"]:
             rec = self.wells.get(str(well["well"]))
             if rec and rec.values.get("outcome"):
-                w.writerow((well["well"], *(rec.values.get(f, "") for f in FIELDS)))
-        return out.getvalue()
+                rows.append((well["well"], *(rec.values.get(f, "") for f in FIELDS)))
+        return csv_text(rows)
 
 
 def _text(value) -> str:

@@ -19,8 +19,8 @@ CSP_SELF = "script-src 'self'"
 
 
 @pytest.fixture
-def client():
-    c = TestClient(create_app())
+def client(tmp_path):
+    c = TestClient(create_app(jobs_root=tmp_path / "jobs"))
     assert c.get("/").status_code == 200          # sets the CSRF cookie
     return c
 
@@ -316,3 +316,100 @@ def test_results_need_a_screen(client):
     url = _compound(client)
     assert client.get(url + "/results").status_code == 404
     assert "design the screen first" in client.get(url + "/decision").text
+
+
+# ------------------------------------------------------------------ portfolio runs
+# invented candidates: a tertiary amine, benzoic acid (pKa 4.20, CRC Handbook), pyridine
+# (5.23, CRC Handbook), butane (no site), a bad SMILES, paracetamol-like phenol amide
+PORTFOLIO = "id,name,smiles\n" + "".join(
+    f"HRN-1{i:02d},cand {i},{s}\n" for i, s in enumerate(
+        ["CN(C)CCc1ccc(Cl)cc1", "OC(=O)c1ccccc1", "c1ccncc1", "CCCC", "C1CC((",
+         "CC(=O)Nc1ccc(O)cc1"] * 2))
+
+
+def _portfolio(c, body=PORTFOLIO, name="cands.csv"):
+    import time
+
+    r = c.post("/portfolio", data={"csrf_token": _tok(c)},
+               files={"file": (name, body.encode(), "text/csv")}, follow_redirects=False)
+    assert r.status_code == 303, r.text[-400:]
+    url = r.headers["location"]
+    for _ in range(600):
+        p = c.get(url + "/progress")
+        assert p.status_code == 200 and "<progress" in p.text
+        if p.headers.get("hx-refresh"):
+            return url
+        time.sleep(0.1)
+    pytest.fail("portfolio run did not finish")
+
+
+def test_portfolio_run_table_and_exports(client):
+    url = _portfolio(client)
+    page = client.get(url).text
+    assert "All 12 rows planned." in page
+    rows = re.findall(r'<tr data-row="(\d+)">', page)
+    assert rows == [str(i) for i in range(1, 13)]            # input order, none lost
+    # sorted by most basic pKa, highest first: the tertiary amine (aliphatic amine ~9-10)
+    top = re.findall(r'<tr data-row="(\d+)">', client.get(url + "?sort=most_basic_pka&dir=desc").text)
+    assert top[0] in ("1", "7")
+    errors = client.get(url + "?verdict=error").text
+    assert errors.count("<tr data-row") == 2 and "SMILES" in errors
+    assert client.get(url + "?q=HRN-103").text.count("<tr data-row") == 1
+    thumb = client.get(url + "/thumb/1.svg")
+    assert thumb.status_code == 200 and thumb.headers["content-type"].startswith("image/svg")
+    assert client.get(url + "/thumb/5.svg").status_code == 404           # the bad SMILES
+    csv_text = client.get(url + "/download/portfolio.csv").text
+    assert csv_text.startswith("row,id,name") and csv_text.count("\n") == 13
+    xlsx = client.get(url + "/download/portfolio.xlsx")
+    assert xlsx.content[:2] == b"PK"
+    import io
+
+    from openpyxl import load_workbook
+
+    sheet = load_workbook(io.BytesIO(xlsx.content)).active
+    assert sheet.max_row == 13
+    assert "<html" in client.get(url + "/download/summary.html").text
+    assert client.get(url + "/download/..%2fx").status_code == 404
+    assert "cands.csv" in client.get("/").text                          # listed on home
+
+
+def test_portfolio_bad_uploads_inline(client):
+    def up(body, name):
+        return client.post("/portfolio", data={"csrf_token": _tok(client)},
+                           files={"file": (name, body, "text/csv")})
+
+    r = up(b"id,structure\nA,CCN\n", "x.csv")
+    assert r.status_code == 422 and 'id="portfolio-error"' in r.text and "smiles" in r.text
+    r = up(b"PK\0\0binary", "x.xlsx")
+    assert r.status_code == 422 and ".csv or .sdf" in r.text
+    r = up(b"id,smiles\n", "../../etc/x.csv")
+    assert r.status_code == 422 and "/etc" not in r.text.split('id="portfolio-error"')[1][:300]
+    r = client.post("/portfolio", data={"csrf_token": _tok(client)})
+    assert r.status_code == 422
+    assert client.get("/p/nosuchjob12").status_code == 404
+    assert client.post("/portfolio", files={"file": ("x.csv", b"smiles\nC\n")}).status_code == 403
+
+
+def test_portfolio_row_limit(client, monkeypatch):
+    from saltplan.web import jobs
+
+    monkeypatch.setattr(jobs, "MAX_ROWS", 3)
+    r = client.post("/portfolio", data={"csrf_token": _tok(client)},
+                    files={"file": ("c.csv", PORTFOLIO.encode(), "text/csv")})
+    assert r.status_code == 422 and "12 rows" in r.text and "saltplan batch" in r.text
+
+
+def test_portfolio_stop(client):
+    big = "id,smiles\n" + "".join(f"X{i},CN(C)CCc1ccc(Cl)cc1\n" for i in range(400))
+    r = client.post("/portfolio", data={"csrf_token": _tok(client)},
+                    files={"file": ("big.csv", big.encode(), "text/csv")}, follow_redirects=False)
+    url = r.headers["location"]
+    assert "Stop the run" in client.get(url).text
+    client.post(url + "/stop", data={"csrf_token": _tok(client)})
+    import time
+
+    for _ in range(100):
+        if "Stopped after" in client.get(url).text:
+            break
+        time.sleep(0.1)
+    assert "Stopped after" in client.get(url).text

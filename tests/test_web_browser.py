@@ -60,15 +60,15 @@ def _free_port() -> int:
 
 # ------------------------------------------------------------------ fixtures
 @pytest.fixture(scope="module")
-def server():
+def server(tmp_path_factory):
     import uvicorn
 
     from saltplan.web import create_app
 
     port = _free_port()
-    app = create_app()
+    app = create_app(jobs_root=tmp_path_factory.mktemp("jobs"))
     config = uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning",
-                            access_log=False, lifespan="off")
+                            access_log=False, lifespan="on")
     srv = uvicorn.Server(config)
     thread = threading.Thread(target=srv.run, daemon=True)
     thread.start()
@@ -412,3 +412,58 @@ def test_bad_results_file_is_an_inline_message(browser, server, tmp_path):
     err = wait_for(browser, "#upload-error")
     assert "Z99" in err.text
     check_page(browser, base, "09-results-bad-file", allowed_console=[REFUSED_DOCUMENT])
+
+
+def test_portfolio_upload_progress_and_table(browser, server, tmp_path):
+    base, _app = server
+    # invented candidates; benzoic acid 4.20 and pyridine 5.23 (CRC Handbook) among them
+    smiles = ["CN(C)CCc1ccc(Cl)cc1", "OC(=O)c1ccccc1", "c1ccncc1", "CCCC", "C1CC(("]
+    body = "id,name,smiles\n" + "".join(f"HRN-{200 + i},cand {i},{smiles[i % 5]}\n"
+                                        for i in range(60))
+    src = tmp_path / "candidates.csv"
+    src.write_text(body, encoding="utf-8")
+    browser.get(base + "/portfolio")
+    check_page(browser, base, "10-portfolio-upload")
+    browser.find_element(By.ID, "portfolio-file").send_keys(str(src))
+    browser.find_element(By.XPATH, "//button[text()='Plan the portfolio']").click()
+    bar = wait_for(browser, "#job-bar")                      # the progress bar is shown
+    assert bar.tag_name == "progress"
+    job_url = browser.current_url
+    check_page(browser, base, "11-portfolio-running")
+    browser.get(base + "/")                                   # leave ...
+    wait_for(browser, "a", "candidates.csv").click()          # ... and come back
+    assert browser.current_url == job_url
+    wait_for(browser, "#job-done", "All 60 rows planned", timeout=120)
+    rows = browser.find_elements(By.CSS_SELECTOR, "table.portfolio tbody tr")
+    assert len(rows) == 50                                    # the first page
+    WebDriverWait(browser, 20).until(lambda d: d.execute_script(
+        "return Array.prototype.every.call(document.querySelectorAll('table.portfolio img'),"
+        " function (i) { return i.getBoundingClientRect().top > innerHeight ||"
+        " (i.complete && i.naturalWidth > 0); })"))
+    check_page(browser, base, "12-portfolio-table")
+    browser.find_element(By.LINK_TEXT, "most basic pKa").click()
+    wait_for(browser, "th[aria-sort=ascending]", "most basic pKa")
+    browser.find_element(By.LINK_TEXT, "most basic pKa").click()
+    wait_for(browser, "th[aria-sort=descending]", "most basic pKa")
+    first = browser.find_elements(By.CSS_SELECTOR, "table.portfolio tbody tr td")[2].text
+    assert first.startswith("HRN-2") and int(first[4:]) % 5 == 0        # the amine first
+    Select(browser.find_element(By.ID, "verdict")).select_by_visible_text("error")
+    wait_for(browser, "#table-count", "12 of 60 rows")
+    check_page(browser, base, "13-portfolio-filtered")
+    table = _download(browser, "table (CSV)", ".csv")
+    assert table.startswith("row,id,name") and table.count("\n") == 61
+    xlsx = _download_bytes(browser, "table (XLSX)", ".xlsx")
+    assert xlsx[:2] == b"PK"
+
+
+def _download_bytes(driver, link_text: str, suffix: str, timeout: float = 30) -> bytes:
+    before = set(driver.downloads.iterdir())
+    driver.find_element(By.LINK_TEXT, link_text).click()
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        new = [p for p in set(driver.downloads.iterdir()) - before if p.name.endswith(suffix)]
+        if new:
+            time.sleep(0.2)
+            return new[0].read_bytes()
+        time.sleep(0.1)
+    pytest.fail(f"no *{suffix} arrived after clicking {link_text!r}")

@@ -1,6 +1,7 @@
 """The workbench application (Starlette). See ``saltplan/web/__init__.py``."""
 from __future__ import annotations
 
+import contextlib
 import re
 from pathlib import Path
 
@@ -14,6 +15,7 @@ from starlette.staticfiles import StaticFiles
 
 from ..errors import SaltplanError
 from .chem import MAX_STRUCTURE_CHARS, matches, parent_from_text
+from .jobs import EXPORTS, MAX_ROWS, JobRunner
 from .security import CSRF_FIELD, BodyLimit, SecurityHeaders, TokenGate, csrf_ok
 from .store import Store
 from .wells import FIELDS, Conflict, WellBook, not_ready
@@ -25,6 +27,13 @@ MAX_BODY_BYTES = 5_000_000
 MAX_FIELDS, MAX_FILES = 60, 1
 _CID = re.compile(r"^c[0-9]{1,9}$")
 _OUTCOMES = ("crystalline", "amorphous", "oil", "gel", "clear_solution")
+#: result table of a portfolio run: (sort key or "", header, numeric)
+PORTFOLIO_COLUMNS = (("row", "row", True), ("", "structure", False), ("id", "id", False),
+                     ("name", "name", False), ("verdict", "verdict", False),
+                     ("most_basic_pka", "most basic pKa", True),
+                     ("most_acidic_pka", "most acidic pKa", True),
+                     ("n_feasible", "feasible counterions", True),
+                     ("", "top counterions", False), ("main_risk", "main risk", False))
 ROUTES_OF_ADMIN = ("oral", "parenteral", "inhalation", "topical", "other")
 
 
@@ -40,9 +49,10 @@ def _environment() -> Environment:
 
 
 class Workbench:
-    def __init__(self):
+    def __init__(self, jobs_root: Path | None = None):
         self.store = Store()
         self.env = _environment()
+        self.jobs = JobRunner(jobs_root)
 
     def page(self, request: Request, template: str, status: int = 200, **ctx) -> HTMLResponse:
         html = self.env.get_template(template).render(
@@ -64,6 +74,13 @@ class Workbench:
                                 "reload the page and try again")
         return form
 
+    def job(self, request: Request):
+        job = self.jobs.get(request.path_params["job"])
+        if job is None:
+            raise HTTPException(404, "no such portfolio run in this workbench (runs are kept "
+                                "while the workbench runs)")
+        return job
+
     def compound(self, request: Request):
         cid = request.path_params["cid"]
         item = self.store.get(cid) if _CID.match(cid) else None
@@ -84,9 +101,10 @@ async def _text_of_upload(upload) -> str:
         raise SaltplanError(f"file '{upload.filename}' is not UTF-8 text (byte {exc.start})") from None
 
 
-def create_app(token: str | None = None) -> Starlette:
-    """The ASGI application. ``token``: required on every request when set (non-local bind)."""
-    wb = Workbench()
+def create_app(token: str | None = None, jobs_root: str | Path | None = None) -> Starlette:
+    """The ASGI application. ``token``: required on every request when set (non-local bind);
+    ``jobs_root``: folder for portfolio uploads (default: a new temporary folder)."""
+    wb = Workbench(Path(jobs_root) if jobs_root else None)
 
     async def home(request: Request):
         q = request.query_params.get("q", "")[:500].strip()
@@ -109,7 +127,8 @@ def create_app(token: str | None = None) -> Starlette:
             if score is not None:
                 items.append((score, item))
         items.sort(key=lambda t: -t[0]) if mode == "similarity" else None
-        return wb.page(request, "home.html.j2", items=items, q=q, mode=mode, error=error)
+        return wb.page(request, "home.html.j2", items=items, q=q, mode=mode, error=error,
+                       jobs=wb.jobs.all())
 
     async def new_compound(request: Request):
         if request.method == "GET":
@@ -309,6 +328,94 @@ def create_app(token: str | None = None) -> Starlette:
         return Response(body, media_type=mt, headers={
             "content-disposition": f'attachment; filename="{stem}-{kind}"'})
 
+    async def portfolio_page(request: Request):
+        error = None
+        if request.method == "POST":
+            form = await wb.form(request)
+            upload = form.get("file")
+            column = str(form.get("smiles_column") or "smiles").strip()[:100] or "smiles"
+            if upload is None or not getattr(upload, "filename", ""):
+                error = "choose a CSV or SDF file of candidates to upload"
+            else:
+                data = await upload.read(MAX_BODY_BYTES + 1)
+                try:
+                    job = wb.jobs.submit(data, upload.filename, column)
+                    return RedirectResponse(f"/p/{job.id}", status_code=303)
+                except SaltplanError as exc:
+                    error = exc.one_line()
+        return wb.page(request, "portfolio.html.j2", status=422 if error else 200,
+                       error=error, jobs=wb.jobs.all(), max_rows=MAX_ROWS)
+
+    def table_args(request: Request) -> dict:
+        qp = request.query_params
+        try:
+            page = int(qp.get("page", "1"))
+        except ValueError:
+            page = 1
+        return {"sort": qp.get("sort", "row"), "desc": qp.get("dir") == "desc",
+                "verdict": qp.get("verdict", "")[:40], "q": qp.get("q", "")[:200].strip(),
+                "page": page}
+
+    async def job_page(request: Request):
+        from .jobs import table
+
+        job = wb.job(request)
+        args = table_args(request)
+        view = table(job, **args) if not job.running else None
+
+        def qs(**changes) -> str:
+            from urllib.parse import urlencode
+
+            cur = {"sort": view["sort"] if view else "row",
+                   "dir": "desc" if args["desc"] else "asc", "verdict": args["verdict"],
+                   "q": args["q"], "page": view["page"] if view else 1, **changes}
+            return f"/p/{job.id}?" + urlencode({k: v for k, v in cur.items() if v not in ("", None)})
+
+        return wb.page(request, "job.html.j2", job=job, t=view, exports=EXPORTS, qs=qs,
+                       columns=PORTFOLIO_COLUMNS)
+
+    async def job_progress(request: Request):
+        job = wb.job(request)
+        resp = wb.page(request, "job_progress.html.j2", job=job)
+        if not job.running:
+            resp.headers["hx-refresh"] = "true"        # the finished page shows the table
+        return resp
+
+    async def job_stop(request: Request):
+        job = wb.job(request)
+        await wb.form(request)
+        wb.jobs.stop(job)
+        return RedirectResponse(f"/p/{job.id}", status_code=303)
+
+    async def job_thumb(request: Request):
+        from .jobs import thumbnail
+
+        job = wb.job(request)
+        try:
+            row = int(request.path_params["row"])
+        except ValueError:
+            raise HTTPException(404, "no such row") from None
+        svg = thumbnail(job, row)
+        if svg is None:
+            raise HTTPException(404, "no drawing for this row")
+        return Response(svg, media_type="image/svg+xml")
+
+    async def job_download(request: Request):
+        from .jobs import export
+
+        job = wb.job(request)
+        kind = request.path_params["kind"]
+        if kind not in EXPORTS:
+            raise HTTPException(404, "no such download")
+        if job.running:
+            raise HTTPException(409, "the run is not finished yet")
+        try:
+            body = export(job, kind)
+        except SaltplanError as exc:
+            raise HTTPException(409, exc.one_line()) from None
+        return Response(body, media_type=EXPORTS[kind], headers={
+            "content-disposition": f'attachment; filename="{_safe_stem(job.name)}-{kind}"'})
+
     async def report_css(request: Request):
         css = wb.env.get_template("partials/style.css.j2").render()
         return Response(css, media_type="text/css")
@@ -329,10 +436,22 @@ def create_app(token: str | None = None) -> Starlette:
         Route("/c/{cid}/results/well/{well}", well_save, methods=["POST"]),
         Route("/c/{cid}/decision", decision_page),
         Route("/c/{cid}/decision/download/{kind}", decision_download),
+        Route("/portfolio", portfolio_page, methods=["GET", "POST"]),
+        Route("/p/{job}", job_page),
+        Route("/p/{job}/progress", job_progress),
+        Route("/p/{job}/stop", job_stop, methods=["POST"]),
+        Route("/p/{job}/thumb/{row}.svg", job_thumb),
+        Route("/p/{job}/download/{kind}", job_download),
         Route("/report.css", report_css),
         Mount("/static", StaticFiles(directory=str(HERE / "static")), name="static"),
     ]
-    app = Starlette(routes=routes, exception_handlers={HTTPException: http_error})
+    @contextlib.asynccontextmanager
+    async def lifespan(_app):
+        yield
+        wb.jobs.close()                  # stop portfolio workers, remove their folders
+
+    app = Starlette(routes=routes, exception_handlers={HTTPException: http_error},
+                    lifespan=lifespan)
     app.state.workbench = wb
     app.add_middleware(SecurityHeaders)
     app.add_middleware(TokenGate, token=token)

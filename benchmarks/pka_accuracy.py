@@ -93,6 +93,87 @@ def pka_dev(cv: bool, worst: int):
             print(f"    {err:+6.2f}  measured {v:5.2f}  {gid:24s} {smi}")
 
 
+# --------------------------------------------------------------------------- analogue step
+# (measured-analogue evidence, saltplan.ionization.analogues; kept apart from the rest)
+TRAIN = ROOT.parent / "shared" / "data" / "pka-train" / "measured_pka.csv"
+
+
+def analogue_cv(fold_params=None, k: int = 5):
+    """Analogue-corrected figures, 5-fold CV grouped by scaffold on pka-train.
+
+    Every measured value in -1 ... 13 is matched to its closest site of the right kind;
+    for the values of fold f the reference table is built from the other folds only
+    (``ReferenceTable.from_rows``), so a molecule's own scaffold group is never in it, and
+    corrected with ``table.correct`` (shipped kernel and uncertainty factors).
+    ``fold_params[f]``, when given, are the estimator parameters fitted without fold f
+    (both the scored estimates and the table's residuals then come from them); otherwise the
+    shipped parameters are used and the estimator part is not cross-validated."""
+    import numpy as np
+
+    from saltplan.ionization import analogues
+    from saltplan.ionization.reference import reference_rows, scaffold_folds, usable
+
+    if not TRAIN.is_file():
+        print(f"\nanalogue step: {TRAIN} not found, skipped")
+        return None
+    fit = analogues.load_fit()
+    base_rows, _skipped = reference_rows(TRAIN, None, analogues.FINGERPRINT)
+    fold = scaffold_folds(base_rows, k)
+    per_fold = [base_rows] * k
+    if fold_params is not None:
+        per_fold = [reference_rows(TRAIN, fold_params[f], analogues.FINGERPRINT)[0] for f in range(k)]
+    before, after, sig, cls, splits = [], [], [], [], []
+    for f in range(k):
+        rows = per_fold[f]
+        fold_of = {(r["line"]): ff for r, ff in zip(base_rows, fold, strict=True)}
+        train = usable([r for r in rows if fold_of.get(r["line"], -1) != f])
+        table = analogues.ReferenceTable.from_rows(train, {"fingerprint": analogues.FINGERPRINT})
+        for r in rows:
+            if fold_of.get(r["line"], -1) != f:
+                continue
+            pka, sigma, _ev = table.correct(r["group_id"], r["kind"], r["fp"], r["estimate"],
+                                            r["uncertainty"], fit)
+            before.append(r["estimate"] - r["measured"])
+            after.append(pka - r["measured"])
+            sig.append(sigma)
+            cls.append(f"{r['group_id']}/{r['kind']}")
+            splits.append(r["split"])
+    b, a, sg = np.array(before), np.array(after), np.array(sig)
+    where = ("estimator parameters fitted without each fold" if fold_params is not None else
+             "shipped estimator parameters (estimator part not cross-validated)")
+    print(f"\nanalogue step, pka-train, 5-fold CV grouped by scaffold ({where}); "
+          f"{len(a)} matched values in -1 ... 13")
+
+    def line(label, e, mask=None):
+        e = e if mask is None else e[mask]
+        print(f"  {label:34s} MAE {np.mean(np.abs(e)):.2f}  RMSE {np.sqrt(np.mean(e ** 2)):.2f}  "
+              f"off by >2: {100 * np.mean(np.abs(e) > 2):4.1f} %  (n={len(e)})")
+
+    line("estimator alone", b)
+    line("with analogue correction", a)
+    test = np.array([x == "test" for x in splits])
+    if test.any():
+        line("  source's test split, alone", b, test)
+        line("  source's test split, corrected", a, test)
+    inside = np.abs(a) <= sg
+    import yaml
+
+    nested = yaml.safe_load(analogues._data_path(analogues.FIT_FILE).read_text(encoding="utf-8"))
+    nested = (nested.get("cv") or {}).get("coverage_nested")
+    print(f"  within +-1 sigma: {100 * inside.mean():.1f} % overall (target 60-76 %; the sigma "
+          f"factors were fitted on these CV errors; nested CV, factors fitted without the "
+          f"scored fold: {100 * nested:.1f} %)" if nested is not None else
+          f"  within +-1 sigma: {100 * inside.mean():.1f} % overall (target 60-76 %)")
+    for c in sorted(set(cls)):
+        m = np.array([x == c for x in cls])
+        if m.sum() >= 50:
+            flag = "" if 0.60 <= inside[m].mean() <= 0.76 else "  <- outside 60-76 %"
+            print(f"    {c:34s} n={m.sum():4d}  MAE {np.mean(np.abs(b[m])):.2f} -> "
+                  f"{np.mean(np.abs(a[m])):.2f}  within 1 sigma {100 * inside[m].mean():3.0f} %{flag}")
+    return {"mae": float(np.mean(np.abs(a))), "rmse": float(np.sqrt(np.mean(a ** 2))),
+            "coverage": float(inside.mean())}
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description="pKa estimator accuracy")
     ap.add_argument("--no-cv", action="store_true", help="skip the cross-validation (faster)")
@@ -100,6 +181,7 @@ def main(argv=None):
     args = ap.parse_args(argv)
     textbook()
     pka_dev(not args.no_cv, args.worst)
+    analogue_cv()
     return 0
 
 

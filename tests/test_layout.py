@@ -7,7 +7,10 @@ functions and under ``if TYPE_CHECKING:`` alike. The layers, highest first (DEVE
 "Package map")::
 
     cli → web → demo → batch → reports → select → screen → plan → ionization, library
-        → structure → private helpers (_io, _data, _provenance, _version, errors)
+        → structure → ledger → private helpers (_io, _data, _provenance, _version, errors)
+
+(``ledger`` stores the JSON of plans, screens and results and imports no step of the
+workflow, so every step above may use it.)
 
 A module may import its own folder and any lower layer. The only upward imports allowed are
 the lazy ones listed in :data:`ALLOWED_UPWARD` (``_repr_html_`` of the result types renders
@@ -36,6 +39,7 @@ LAYERS = {
     "plan": 5,
     "ionization": 4, "library": 4,       # siblings: neither imports the other
     "structure": 3,
+    "ledger": 2,                         # the record store: JSON in, JSON out, no chemistry
     "_private": 1,                       # _io, _data, _provenance, _version, errors
 }
 PRIVATE_HELPERS = {"_io", "_data", "_provenance", "_version", "errors"}

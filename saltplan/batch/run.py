@@ -53,6 +53,8 @@ class Settings:
     evaluator: Callable[..., Any] | None = None
     libraries: tuple[str, ...] | None = None
     top: int = 3
+    keep_plan: bool = False       # rows also carry the full plan dict ("_plan"), for a ledger
+    inhouse: Any = None           # ledger evidence for the ranking (InhouseEvidence), or None
 
 
 # --------------------------------------------------------------------------- one row
@@ -109,10 +111,14 @@ def evaluate_record(rec: Record, settings: Settings) -> dict[str, Any]:
         dose = _parse_dose(rec.dose)
         measured = _parse_measured(rec.pka)
         evaluator = settings.evaluator or _default_evaluator()
+        extra = {"inhouse": settings.inhouse} if settings.inhouse is not None else {}
         result = evaluator(rec.smiles, name=rec.name or None, dose_mg=dose, measured=measured,
-                           libraries=list(settings.libraries) if settings.libraries else None)
+                           libraries=list(settings.libraries) if settings.libraries else None,
+                           **extra)
         data = result.to_dict() if hasattr(result, "to_dict") else result
         row.update(summarize_plan(data, settings.top))
+        if settings.keep_plan:
+            row["_plan"] = data
     except SaltplanError as exc:
         row["error"] = exc.one_line()
     except Exception as exc:  # a bug on one row must not stop a portfolio run
@@ -337,6 +343,7 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
                   libraries: Sequence[str] | None = None, top: int = 3,
                   progress: Callable[[int, int | None], None] | None = None,
                   evaluator: Callable[..., Any] | None = None,
+                  keep_plan: bool = False, inhouse: Any = None,
                   ) -> Generator[list[dict[str, Any]], None, None]:
     """Evaluate a table of candidates, yielding the output rows chunk by chunk.
 
@@ -351,7 +358,7 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
     source = open_source(dataframe_or_path, spec)
     _preflight_libraries(libraries, evaluator)
     settings = Settings(evaluator=evaluator, libraries=tuple(str(p) for p in libraries)
-                        if libraries else None, top=top)
+                        if libraries else None, top=top, keep_plan=keep_plan, inhouse=inhouse)
     chunks = mark_duplicates(source.chunks(chunk_size))
     if engine == "dask":
         results = _run_dask(chunks, settings, scheduler)
@@ -451,10 +458,14 @@ class BatchRun:
     duplicates: int
     by_verdict: dict[str, int] = field(default_factory=dict)
     outputs: tuple[str, ...] = ()
+    recorded: int | None = None        # plans recorded in a ledger (None: no ledger)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"rows": self.rows, "failed": self.failed, "duplicates": self.duplicates,
-                "by_verdict": dict(self.by_verdict), "outputs": list(self.outputs)}
+        out = {"rows": self.rows, "failed": self.failed, "duplicates": self.duplicates,
+               "by_verdict": dict(self.by_verdict), "outputs": list(self.outputs)}
+        if self.recorded is not None:
+            out["recorded"] = self.recorded
+        return out
 
 
 def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
@@ -462,7 +473,13 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     """Evaluate and stream the rows to ``out`` (.csv, .json, .jsonl or .xlsx).
 
     ``summary``: also write the HTML summary there; ``source_label`` names the input on it
-    (default: the input file's name). Other options as for :func:`evaluate_many`.
+    (default: the input file's name). ``ledger`` (a :class:`saltplan.ledger.Ledger`):
+    record every planned row's full plan there, one transaction per plan, as the rows
+    arrive (a run stopped part-way keeps the plans recorded so far: each is complete);
+    ``learn`` (default True with a ledger): rank with its in-house evidence; ``inhouse``
+    (without ``ledger``): rank with that evidence
+    (:meth:`saltplan.ledger.Ledger.inhouse_evidence`) but record nothing.
+    Other options as for :func:`evaluate_many`.
     Files are written to temporary names and renamed only when the run completes, so a
     failed run leaves no partial output.
     """
@@ -498,10 +515,23 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
         if user_progress is not None:
             user_progress(done, total)
 
+    ledger = options.pop("ledger", None)
+    learn = options.pop("learn", True)
+    if ledger is not None:
+        options["keep_plan"] = True
+        if learn:
+            options["inhouse"] = ledger.inhouse_evidence()
     stream = iter_evaluate(dataframe_or_path, progress=progress, **options)
     done = 0
+    recorded = 0
     try:
         for rows in stream:
+            if ledger is not None:
+                for row in rows:
+                    plan = row.pop("_plan", None)
+                    if plan is not None:
+                        ledger.record_plan(plan)
+                        recorded += 1
             writer.write(rows)
             builder.add(rows)
             done += len(rows)
@@ -523,4 +553,5 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
         raise
     res = builder.result()
     return BatchRun(rows=res.rows, failed=res.failed, duplicates=res.duplicates,
-                    by_verdict=dict(res.by_verdict), outputs=outputs)
+                    by_verdict=dict(res.by_verdict), outputs=outputs,
+                    recorded=recorded if ledger is not None else None)

@@ -26,6 +26,7 @@ COMMANDS = {
     "select": "saltplan.cli.select:select",
     "demo": "saltplan.cli.demo:demo",
     "serve": "saltplan.cli.serve:serve",
+    "ledger": "saltplan.cli.ledger:ledger",
 }
 
 

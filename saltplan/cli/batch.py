@@ -6,6 +6,7 @@ import sys
 import click
 
 from ._common import common_options, echo_json
+from ._ledger import CommandLedger, ledger_options
 
 
 class _Progress:
@@ -60,9 +61,11 @@ class _Progress:
 @click.option("--top", type=click.IntRange(0, 50), default=3, show_default=True,
               help="Feasible counterions listed per row.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
+@ledger_options
 @common_options
 def batch(file, out, summary, smiles_column, id_column, name_column, dose_column, pka_columns,
-          jobs, engine, scheduler, chunk_size, libraries, top, quiet, as_json):
+          jobs, engine, scheduler, chunk_size, libraries, top, quiet, ledger_url, record,
+          no_learn, author, as_json):
     """Plan salts for every row of FILE (CSV with a SMILES column, or SDF).
 
     Writes one output row per input row, in input order; a row that cannot be planned
@@ -72,6 +75,10 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
 
     Exit status: 0 if every row was planned, 1 if any row failed (or the input could not
     be read), 2 for a usage error. A one-line count goes to stderr.
+
+    With a ledger (--ledger, --record or $SALTPLAN_LEDGER) the rankings learn from its
+    screens (--no-learn: not); --record stores every planned row's plan there, one
+    transaction each, as the rows arrive.
     """
     from ..batch.run import run_batch
 
@@ -79,12 +86,16 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
     if not quiet and sys.stderr.isatty():
         progress = _Progress()
     try:
-        result = run_batch(file, out, summary=summary, smiles_column=smiles_column,
-                           id_column=id_column, name_column=name_column,
-                           dose_column=dose_column, pka_columns=pka_columns or None,
-                           jobs=jobs, engine=engine, scheduler=scheduler,
-                           chunk_size=chunk_size, libraries=list(libraries) or None,
-                           top=top, progress=progress)
+        with CommandLedger(ledger_url, record, no_learn, author) as led:
+            extra = ({"ledger": led.led, "learn": not no_learn} if record
+                     else {"inhouse": led.inhouse} if led.inhouse is not None else {})
+            result = run_batch(file, out, summary=summary, smiles_column=smiles_column,
+                               id_column=id_column, name_column=name_column,
+                               dose_column=dose_column, pka_columns=pka_columns or None,
+                               jobs=jobs, engine=engine, scheduler=scheduler,
+                               chunk_size=chunk_size, libraries=list(libraries) or None,
+                               top=top, progress=progress, **extra)
+            where = led.led.where if led.led is not None else None
     finally:
         if progress is not None:
             progress.close()
@@ -96,6 +107,8 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
     line = f"{result.rows} rows, {result.failed} failed (see column error)"
     if result.duplicates:
         line += f", {result.duplicates} repeated ids (see column duplicate_of)"
+    if result.recorded is not None:
+        line += f", {result.recorded} plans recorded in {where}"
     click.echo(line, err=True)
     if result.failed:
         click.get_current_context().exit(1)

@@ -4,6 +4,7 @@ from __future__ import annotations
 import click
 
 from ._common import common_options, dumps, echo_json, max_atoms_option, structure_argument, table
+from ._ledger import CommandLedger, ledger_options
 
 _ROUTES = ("oral", "parenteral", "inhalation", "topical", "other")   # = saltplan.plan.ROUTES
 
@@ -46,19 +47,29 @@ def _parse_measured(values):
 @click.option("--out", "out_dir", type=click.Path(file_okay=False),
               help="Write plan.json (and the reports, when available) into this folder.")
 @max_atoms_option
+@ledger_options
 @common_options
 def plan(structure, name, dose_mg, route, pkas, libraries, weights, min_delta_pka,
-         melting_point, s0, salt_solubility, top, out_dir, max_atoms, as_json):
-    """Rank counterions and stoichiometries for a salt of SMILES|FILE, with reasons."""
+         melting_point, s0, salt_solubility, top, out_dir, max_atoms, ledger_url, record,
+         no_learn, author, as_json):
+    """Rank counterions and stoichiometries for a salt of SMILES|FILE, with reasons.
+
+    With a ledger (--ledger, --record or $SALTPLAN_LEDGER) the precedence term also
+    learns from the ledger's screens on similar sites (--no-learn: published prior only);
+    --record stores the plan there.
+    """
     from ..plan.planner import plan_salts
 
-    result = plan_salts(structure, name=name, dose_mg=dose_mg, route=route,
-                        measured=_parse_measured(pkas), libraries=list(libraries) or None,
-                        weights=weights, min_delta_pka=min_delta_pka,
-                        melting_point_c=melting_point, intrinsic_solubility_mg_ml=s0,
-                        salt_solubility_mg_ml=salt_solubility, max_heavy_atoms=max_atoms)
-    data = result.to_dict()
-    written = _write(result, data, out_dir) if out_dir else []
+    with CommandLedger(ledger_url, record, no_learn, author) as led:
+        result = plan_salts(structure, name=name, dose_mg=dose_mg, route=route,
+                            measured=_parse_measured(pkas), libraries=list(libraries) or None,
+                            weights=weights, min_delta_pka=min_delta_pka,
+                            melting_point_c=melting_point, intrinsic_solubility_mg_ml=s0,
+                            salt_solubility_mg_ml=salt_solubility, max_heavy_atoms=max_atoms,
+                            inhouse=led.inhouse)
+        data = result.to_dict()
+        written = _write(result, data, out_dir) if out_dir else []
+        led.record(lambda ledger: ledger.record_plan(data))
     if as_json:
         echo_json(data)
     else:
@@ -130,6 +141,13 @@ def render_text(d: dict, top: int = 10) -> str:
                                   "P(transfer)", "drug %", "score", "key caveats"]))
         lines.append(f"({min(top, len(cands))} of {len(cands)} feasible shown; "
                      f"{len(d['excluded'])} excluded below ΔpKa {inputs['min_delta_pka']:g})")
+        for c in cands[:top]:
+            if c.get("precedence_basis"):
+                lines.append(f"#{c['rank']} {c['counterion']} {c['stoichiometry']} precedence "
+                             f"{c['breakdown']['precedence']:.3f}: {c['precedence_basis']}")
+        if (d.get("settings") or {}).get("inhouse_prior"):
+            lines.append(f"precedence learns from the ledger "
+                         f"{d['settings']['inhouse_prior']['ledger']}")
     else:
         lines.append(f"no feasible candidate ({len(d['excluded'])} excluded below ΔpKa "
                      f"{inputs['min_delta_pka']:g})")

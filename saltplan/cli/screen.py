@@ -4,6 +4,7 @@ from __future__ import annotations
 import click
 
 from ._common import common_options, echo_json, max_atoms_option, structure_argument, table
+from ._ledger import CommandLedger, ledger_options
 
 MODE_CHOICES = ("slurry", "cooling", "evaporation", "antisolvent")
 
@@ -73,21 +74,37 @@ def _parse_budgets(values):
 @click.option("--library", "libraries", multiple=True, type=click.Path(exists=True),
               help="Extra counterion library file (repeatable); adds or overrides by id.")
 @max_atoms_option
+@ledger_options
 @common_options
 def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents, n_solvents,
            modes, api_mg, stock_molarity, excess, liquid_dosing, stock_solvent, layout,
            no_controls, include_risky, counterion_budgets, solvent_library, name, dose_mg,
-           pkas, libraries, max_atoms, as_json):
+           pkas, libraries, max_atoms, ledger_url, record, no_learn, author, as_json):
     """Design the salt screen of a structure and write its files to --out.
 
     Counterions come from the plan (top N or --counterion), solvents are chosen to span
     polarity and hydrogen bonding (ICH Q3C class 1 never, class 3 preferred), with free-form
     controls. Risky combinations are dropped and listed unless --include-risky. Over budget
-    or over 96 wells is an error that says what to cut.
+    or over 96 wells is an error that says what to cut. With a ledger the plan's ranking
+    learns from it (--no-learn: not); --record stores the design and its plan there.
     """
+    with CommandLedger(ledger_url, record, no_learn, author) as led:
+        design, written = _design(led, structure, api_budget_mg, out_dir, top, counterions,
+                                  scale, solvents, n_solvents, modes, api_mg, stock_molarity,
+                                  excess, liquid_dosing, stock_solvent, layout, no_controls,
+                                  include_risky, counterion_budgets, solvent_library, name,
+                                  dose_mg, pkas, libraries, max_atoms)
+        led.record(lambda ledger: ledger.record_screen(design))
+    _show(design, written, as_json)
+
+
+def _design(led, structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
+            n_solvents, modes, api_mg, stock_molarity, excess, liquid_dosing, stock_solvent,
+            layout, no_controls, include_risky, counterion_budgets, solvent_library, name,
+            dose_mg, pkas, libraries, max_atoms):
     from ..screen.output import screen_structure
 
-    design, written = screen_structure(
+    return screen_structure(
         structure, api_budget_mg, out_dir=out_dir, name=name, dose_mg=dose_mg,
         measured=_parse_pka(pkas), libraries=libraries or None, max_heavy_atoms=max_atoms,
         solvent_library=solvent_library, top=top, counterions=list(counterions) or None,
@@ -95,7 +112,10 @@ def screen(structure, api_budget_mg, out_dir, top, counterions, scale, solvents,
         scale=scale, api_mg_per_well=api_mg, stock_molarity=stock_molarity, excess=excess,
         include_risky=include_risky, controls=not no_controls, liquid_dosing=liquid_dosing,
         stock_solvent=stock_solvent, counterion_budget_mg=_parse_budgets(counterion_budgets),
-        layout=layout)
+        layout=layout, inhouse=led.inhouse)
+
+
+def _show(design, written, as_json):
     if as_json:
         echo_json(design.to_dict())
         return

@@ -4,6 +4,22 @@ from __future__ import annotations
 import click
 
 from ._common import common_options, echo_json, table
+from ._ledger import CommandLedger, ledger_options
+
+
+def ledger_options_no_learn(func):
+    return ledger_options(func, learn=False)
+
+
+def _record(design_dir, results, selection, ledger_url, author) -> None:
+    from ..select.evaluate import load_design
+    from ..select.results import read_results
+
+    design = load_design(design_dir)
+    parsed = read_results(results, design)
+    with CommandLedger(ledger_url, True, True, author) as led:
+        res = led.record(lambda ledger: ledger.record_results(parsed, design=design))
+        led.record(lambda ledger: ledger.record_selection(selection, results_uid=res.uid))
 
 
 @click.command()
@@ -16,18 +32,23 @@ from ._common import common_options, echo_json, table
                    "saltplan/data/selection_thresholds.yaml).")
 @click.option("--dose-mg", type=click.FloatRange(min=0, min_open=True),
               help="Highest single dose [mg] for the solubility criterion (default: the plan's).")
+@ledger_options_no_learn
 @common_options
-def select(design_dir, results, out_dir, thresholds, dose_mg, as_json):
+def select(design_dir, results, out_dir, thresholds, dose_mg, ledger_url, record, author,
+           as_json):
     """Evaluate screen RESULTS.csv against the design in DESIGN_DIR and pick a lead form.
 
     Tier 1 crystalline hits with the intended stoichiometry; tier 2 melting onset,
     Ph. Eur. 5.11 hygroscopicity class, solubility against the dose in 250 mL (ICH M9),
     solvate/hydrate status; tier 3 open questions. Writes the decision record (HTML,
-    Markdown, JSON) to --out; nothing is written when the input is refused.
+    Markdown, JSON) to --out; nothing is written when the input is refused. --record
+    stores the results file (with its design and plan) and the selection in the ledger.
     """
     from ..reports.decision import select_and_record
 
     selection, written = select_and_record(design_dir, results, out_dir, thresholds, dose_mg)
+    if record:
+        _record(design_dir, results, selection, ledger_url, author)
     if as_json:
         echo_json(selection.to_dict())
         return

@@ -2,8 +2,10 @@
 
 ``saltplan demo --out reports`` runs every step on the demo compounds: plan, report,
 screen design, batch triage of the whole programme and, for the lead compound, the
-decision record from an INVENTED screen-results file. Everything here is invented data
-for demonstration; none of it is a measurement.
+decision record from an INVENTED screen-results file. Every plan, screen, the results and
+the selection are recorded in a ledger in the output folder (``ledger.sqlite``), and one
+outcomes query over it is written to ``ledger-outcomes.txt``. Everything here is invented
+data for demonstration; none of it is a measurement.
 """
 from __future__ import annotations
 
@@ -15,6 +17,10 @@ from .._data import package_yaml
 
 #: the compound whose screen gets invented results and a decision record
 LEAD = "HRN-101"
+#: the ledger of the demo (in the output folder) and its outcomes query
+LEDGER_FILE = "ledger.sqlite"
+OUTCOMES_FILE = "ledger-outcomes.txt"
+DEMO_AUTHOR = "saltplan demo"
 
 
 @dataclass(frozen=True)
@@ -82,10 +88,12 @@ def _run_demo(out: Path) -> dict[str, Any]:
     written: list[str] = []
     summary: dict[str, Any] = {"programme": programme_name(), "compounds": []}
     designs = {}
+    plans = []
     for c in load_programme():
         plan = plan_salts(c.smiles, name=c.code, dose_mg=c.dose_mg, route=c.route,
                           measured=dict(c.measured_pka) or None)
         folder = out / c.code
+        plans.append(plan)
         written += [str(p) for p in _write_plan(plan, folder)]
         entry = {"code": c.code, "role": c.role, "verdict": plan.verdict["code"],
                  "top": [f"{k['counterion']} {k['stoichiometry']}" for k in plan.to_dict()["candidates"][:3]
@@ -99,8 +107,11 @@ def _run_demo(out: Path) -> dict[str, Any]:
         summary["compounds"].append(entry)
 
     written += _batch(out)
+    selected = None
     if LEAD in designs:
-        written += _select(designs[LEAD], out / LEAD)
+        files, selected = _select(designs[LEAD], out / LEAD)
+        written += files
+    written += _record(out, plans, designs, selected)
     written.append(str(_write_environment(out)))
     summary["written"] = sorted(set(written))
     return summary
@@ -172,15 +183,59 @@ def _batch(out: Path) -> list[str]:
     return [str(p) for p in run.outputs]
 
 
-def _select(design, folder: Path) -> list[str]:
-    try:
-        from ..reports.decision import write_decision_record
-        from ..select.evaluate import evaluate_results
-        from .results import make_demo_results
-    except ImportError:
-        return []
+def _select(design, folder: Path):
+    """([written], (results, selection)) of the lead's invented screen results."""
     from .._io import write_text_atomic
+    from ..reports.decision import write_decision_record
+    from ..select.evaluate import evaluate_results
+    from ..select.results import read_results
+    from .results import make_demo_results
 
     results_path = write_text_atomic(folder / "screen" / "results-invented.csv", make_demo_results(design))
-    selection = evaluate_results(design, results_path)
-    return [str(results_path)] + [str(p) for p in write_decision_record(selection, folder / "decision")]
+    results = read_results(results_path, design)
+    selection = evaluate_results(design, results)
+    files = [str(results_path)] + [str(p) for p in write_decision_record(selection, folder / "decision")]
+    return files, (results, selection)
+
+
+def _record(out: Path, plans, designs, selected) -> list[str]:
+    """Record the programme in ``out/ledger.sqlite`` (a fresh ledger) and write one
+    outcomes query over it: the lead's counterion on its kind of site."""
+    from .._io import write_text_atomic
+    from ..ledger import open_ledger
+    from ..plan.inhouse import PKA_WINDOW
+
+    path = out / LEDGER_FILE
+    if path.exists():        # never append to an older demo ledger: the file is rebuilt
+        path.unlink()
+    with open_ledger(path, author=DEMO_AUTHOR) as led:
+        screens = {}
+        for plan in plans:
+            if plan.name in designs:
+                screens[plan.name] = led.record_screen(designs[plan.name]).uid
+            else:
+                led.record_plan(plan)
+        query = None
+        if selected is not None:
+            results, selection = selected
+            # the file as the output folder names it, not the staging folder's path
+            body = dict(results.to_dict(), file=f"{LEAD}/screen/results-invented.csv")
+            res = led.record_results(body, screen_uid=screens[LEAD])
+            led.record_selection(selection, results_uid=res.uid)
+            lead = selection.lead
+            counterion = lead.id.split("/")[0] if lead is not None else "hydrochloride"
+            plan = designs[LEAD].plan
+            cand = next(c for c in plan["candidates"] if c["counterion"] == counterion)
+            site = min(cand["transfers"], key=lambda t: t["delta_pka"])
+            where = next(s for s in plan["sites"] if s["atom"] == site["api_atom"]
+                         and s["kind"] == site["api_kind"])
+            lo, hi = round(where["pka"] - PKA_WINDOW, 1), round(where["pka"] + PKA_WINDOW, 1)
+            query = (f"saltplan ledger outcomes {counterion} --site-class "
+                     f"{where['group_id']} --pka {lo:g}:{hi:g} --ledger {LEDGER_FILE}",
+                     led.outcomes(counterion, where["group_id"], lo, hi))
+    written = [str(path)]
+    if query is not None:
+        text = (f"$ {query[0]}\n{query[1].render()}\n"
+                "(the demo's screen results are INVENTED; not measurements)\n")
+        written.append(str(write_text_atomic(out / OUTCOMES_FILE, text)))
+    return written

@@ -14,7 +14,7 @@ from __future__ import annotations
 import csv
 import math
 import random
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from . import catalogue
@@ -32,9 +32,45 @@ OUTLIER = 4.0          # residuals beyond this are treated as unassignable (weig
 
 @dataclass
 class Entry:
+    """One standardized molecule with its measured values (parallel lists, sorted by value).
+
+    ``kinds[i]`` is ``"acid"``, ``"base"`` or ``None`` (any kind: the development set does
+    not say); ``origins[i]`` is the data set (``"train"`` = pka-train compilation, ``"dev"``
+    = pka-dev literature set); ``splits[i]`` the source's own split (``"train"`` /
+    ``"test"``; ``"dev"`` for the development set). ``scaffold`` is the CV group id
+    (:func:`scaffold_group`)."""
+
     smiles: str
     perc: Perception
     measured: list[float]
+    kinds: list[str | None] = field(default_factory=list)
+    origins: list[str] = field(default_factory=list)
+    splits: list[str] = field(default_factory=list)
+    scaffold: str = ""
+
+    def __post_init__(self):
+        n = len(self.measured)
+        if not self.kinds:
+            self.kinds = [None] * n
+        if not self.origins:
+            self.origins = ["dev"] * n
+        if not self.splits:
+            self.splits = ["dev"] * n
+
+    def subset(self, keep) -> "Entry | None":
+        """The same molecule with only the values for which ``keep(i)`` is true (or None)."""
+        idx = [i for i in range(len(self.measured)) if keep(i)]
+        if not idx:
+            return None
+        return Entry(self.smiles, self.perc, [self.measured[i] for i in idx],
+                     [self.kinds[i] for i in idx], [self.origins[i] for i in idx],
+                     [self.splits[i] for i in idx], self.scaffold)
+
+
+#: "reported_as" of the pka-train compilation -> site kind
+_REPORTED = {"strongest acidic": "acid", "strongest basic": "base"}
+#: values of the calibration file used for fitting and scoring (issue 13: -1 ... 13)
+TRAIN_RANGE = (-1.0, 13.0)
 
 
 def read_dataset(path: str | Path) -> list[tuple[str, list[float]]]:
@@ -50,24 +86,84 @@ def read_dataset(path: str | Path) -> list[tuple[str, list[float]]]:
     return list(groups.items())
 
 
+def read_values(path: str | Path, origin: str, value_range: tuple[float, float] | None = None):
+    """Rows grouped by SMILES as ``(smiles, [(value, kind, origin, split), ...])``.
+
+    ``kind`` comes from the ``reported_as`` column when there is one (pka-train), else
+    None; ``split`` from ``split_in_source`` (else ``origin``). Values outside
+    ``value_range`` are skipped."""
+    groups: dict[str, list[tuple]] = {}
+    with open(path, newline="", encoding="utf-8") as fh:
+        for row in csv.DictReader(fh):
+            try:
+                v = float(row["pka"])
+            except (KeyError, ValueError):
+                continue
+            if value_range and not (value_range[0] <= v <= value_range[1]):
+                continue
+            kind = _REPORTED.get((row.get("reported_as") or "").strip())
+            split = (row.get("split_in_source") or origin).strip()
+            groups.setdefault(row["smiles"], []).append((v, kind, origin, split))
+    return list(groups.items())
+
+
+def scaffold_group(mol) -> str:
+    """Cross-validation group of a molecule: its Bemis-Murcko framework.
+
+    Ring systems with their linkers (RDKit ``MurckoScaffold``), canonical SMILES, so that
+    every molecule sharing a framework lands in the same fold. Acyclic molecules have no
+    framework; they are grouped by their generic skeleton (all heavy atoms as carbon, all
+    bonds single: butanoic acid, butylamine and butanol share "CCCC(C)" ... ), which keeps
+    homologous variants of one chain shape together."""
+    from rdkit import Chem
+    from rdkit.Chem.Scaffolds import MurckoScaffold
+
+    if mol.GetRingInfo().NumRings():
+        core = MurckoScaffold.GetScaffoldForMol(mol)
+        return "ring:" + Chem.MolToSmiles(core)
+    generic = MurckoScaffold.MakeScaffoldGeneric(Chem.RWMol(mol))
+    return "chain:" + Chem.MolToSmiles(generic)
+
+
 def prepare(rows) -> tuple[list[Entry], list[str]]:
-    """Standardize and perceive each molecule once; returns entries and failures."""
+    """Standardize and perceive each molecule once; returns entries and failures.
+
+    ``rows``: ``(smiles, values)`` where each value is a float or a
+    ``(value, kind, origin, split)`` tuple (:func:`read_values`). Different drawings of one
+    standardized parent (also across data sets) are merged into one entry."""
     from ..errors import SaltplanError
     from ..structure import read_structure
 
     failed: list[str] = []
-    merged: dict[str, tuple[object, list[float]]] = {}
+    merged: dict[str, tuple[object, list[tuple]]] = {}
     for smi, values in rows:
         try:
             parent = read_structure(smi)
         except SaltplanError:
             failed.append(smi)
             continue
-        # one molecule = one standardized parent (different drawings are merged)
         mol, vals = merged.setdefault(parent.smiles, (parent.mol, []))
-        vals.extend(values)
-    entries = [Entry(smi, perceive(mol), sorted(vals)) for smi, (mol, vals) in merged.items()]
+        for v in values:
+            vals.append(v if isinstance(v, tuple) else (float(v), None, "dev", "dev"))
+    entries = []
+    for smi, (mol, vals) in merged.items():
+        vals.sort(key=lambda t: (t[0], t[1] or "", t[2], t[3]))
+        entries.append(Entry(smi, perceive(mol), [t[0] for t in vals], [t[1] for t in vals],
+                             [t[2] for t in vals], [t[3] for t in vals], scaffold_group(mol)))
     return entries, failed
+
+
+def load_calibration_sets(train_path=None, dev_path=None, train_range=TRAIN_RANGE):
+    """Entries of both shared data sets together (pka-train values in ``train_range``)."""
+    root = Path(__file__).resolve().parents[2].parent / "shared" / "data"
+    train_path = Path(train_path or root / "pka-train" / "measured_pka.csv")
+    dev_path = Path(dev_path or root / "pka-dev" / "literature_pka.csv")
+    rows = []
+    if train_path.is_file():
+        rows += read_values(train_path, "train", train_range)
+    if dev_path.is_file():
+        rows += read_values(dev_path, "dev")
+    return prepare(rows)
 
 
 def predict(entry: Entry, params) -> list[tuple[float, str, str]]:
@@ -85,52 +181,108 @@ def predict_all(entry: Entry, params) -> list[float]:
     return [pka for pka, _steps in evaluate(entry.perc, params)]
 
 
+def _shown(entry: Entry, values) -> list[int]:
+    return [i for i, rec in enumerate(entry.perc.records)
+            if (rec.group.kind == "base" and values[i] >= BASE_MIN)
+            or (rec.group.kind == "acid" and values[i] <= ACID_MAX)]
+
+
+def _closest(entry: Entry, values, shown, v, kind):
+    cand = [i for i in shown if kind is None or entry.perc.records[i].group.kind == kind]
+    if not cand:
+        return None
+    return min(cand, key=lambda k: (abs(values[k] - v), k))
+
+
 def assign(entry: Entry, params) -> list[tuple[float, int | None, float | None]]:
-    """For each measured value: (value, record index of the closest returned site, estimate).
+    """For each measured value: (value, record index of the closest returned site of the
+    right kind, estimate); ``(value, None, None)`` when the molecule has no such site.
 
     The index refers to ``entry.perc.records`` (not to the windowed list), so residuals stay
     continuous when a site crosses the reporting window during the fit."""
     values = predict_all(entry, params)
-    shown = [i for i, rec in enumerate(entry.perc.records)
-             if (rec.group.kind == "base" and values[i] >= BASE_MIN)
-             or (rec.group.kind == "acid" and values[i] <= ACID_MAX)]
+    shown = _shown(entry, values)
     res = []
-    for v in entry.measured:
-        if not shown:
-            res.append((v, None, None))
-            continue
-        i = min(shown, key=lambda k: (abs(values[k] - v), k))
-        res.append((v, i, values[i]))
+    for v, kind in zip(entry.measured, entry.kinds):
+        i = _closest(entry, values, shown, v, kind)
+        res.append((v, None, None) if i is None else (v, i, values[i]))
     return res
+
+
+@dataclass(frozen=True)
+class SiteResidual:
+    """One measured value scored against the estimator (:func:`site_residuals`)."""
+
+    smiles: str              # standardized parent (Entry.smiles)
+    atom: int | None         # site atom in the parent (None: no site of the right kind)
+    group_id: str | None     # catalogue group of that site
+    kind: str | None         # kind of the measured value ("acid" / "base"; None = any)
+    measured: float
+    estimated: float | None  # macroscopic estimate of that site with ``params``
+    scaffold: str            # CV group (Bemis-Murcko framework, :func:`scaffold_group`)
+    origin: str = "dev"      # data set: "train" (pka-train) or "dev" (pka-dev)
+    split: str = "dev"       # the source's own split: "train" / "test" ("dev" for pka-dev)
+
+    @property
+    def residual(self) -> float | None:
+        return None if self.estimated is None else self.estimated - self.measured
+
+
+def site_residuals(entries: list[Entry], params) -> list[SiteResidual]:
+    """Per measured value: molecule, matched site, group, kind, measured, estimated, scaffold.
+
+    ``params`` is a parameter dict (e.g. ``catalogue.parameters()`` or a CV fold's fit) or a
+    callable ``params(entry) -> dict`` (so a cross-validation can score each entry with the
+    parameters of the folds that did not see it). Each value is matched to the closest
+    returned site of the right kind (any kind for values without one), exactly as the fit
+    and the benchmark do. Values whose molecule has no site of that kind come back with
+    ``atom``, ``group_id`` and ``estimated`` set to None. Deterministic order: entries in
+    the given order, values in ascending order within an entry."""
+    out = []
+    for e in entries:
+        p = params(e) if callable(params) else params
+        for (v, i, est), kind, origin, split in zip(assign(e, p), e.kinds, e.origins, e.splits):
+            rec = e.perc.records[i] if i is not None else None
+            out.append(SiteResidual(e.smiles, rec.atom if rec else None,
+                                    rec.group.id if rec else None, kind, v,
+                                    None if est is None else float(est), e.scaffold,
+                                    origin, split))
+    return out
 
 
 # --------------------------------------------------------------------------- metrics
 def metrics(entries: list[Entry], params_for) -> dict:
-    """Benchmark metrics. ``params_for(entry)`` gives the parameters to use (CV folds)."""
-    errors, per_class, extra_mols, no_site = [], {}, 0, 0
+    """Benchmark metrics. ``params_for(entry)`` gives the parameters to use (CV folds).
+
+    ``mae``, ``rmse`` and ``frac_off_2`` are over the values that have a site of the right
+    kind; ``frac_no_site`` is the share of values without one (counted apart, not hidden
+    in the MAE). ``per_class``: ``group_id -> (n, MAE, RMSE)`` of the matched values."""
+    extra_mols = 0
     for e in entries:
-        p = params_for(e)
-        sites = predict(e, p)
-        n_window = sum(1 for s in sites if 2.0 <= s[0] <= 12.0)
-        if n_window > len(e.measured) + 1:
+        sites = predict(e, params_for(e))
+        if sum(1 for s in sites if 2.0 <= s[0] <= 12.0) > len(e.measured) + 1:
             extra_mols += 1
-        for v in e.measured:
-            if not sites:
-                no_site += 1
-                errors.append(v if v < 7 else 14 - v)  # no site: count as a miss of ~the distance to neutral
-                continue
-            i = min(range(len(sites)), key=lambda k: (abs(sites[k][0] - v), k))
-            err = sites[i][0] - v
-            errors.append(abs(err))
-            per_class.setdefault(sites[i][2], []).append(err)
-    n = len(errors)
+    return summarize(site_residuals(entries, params_for), extra_mols, len(entries))
+
+
+def summarize(rows: list[SiteResidual], extra_mols: int = 0, molecules: int | None = None) -> dict:
+    """MAE / RMSE / off-by-2 / no-site share / per-class figures of residual rows."""
+    errs = [r.residual for r in rows if r.residual is not None]
+    per_class: dict[str, list[float]] = {}
+    for r in rows:
+        if r.residual is not None:
+            per_class.setdefault(r.group_id, []).append(r.residual)
+    n, total = len(errs), len(rows)
+    nan = float("nan")
     return {
-        "values": n,
-        "molecules": len(entries),
-        "mae": sum(errors) / n if n else float("nan"),
-        "frac_off_2": sum(1 for x in errors if x > 2.0) / n if n else float("nan"),
-        "frac_mol_extra_sites": extra_mols / len(entries) if entries else float("nan"),
-        "values_without_site": no_site,
+        "values": total,
+        "molecules": molecules if molecules is not None else len({r.smiles for r in rows}),
+        "mae": sum(abs(x) for x in errs) / n if n else nan,
+        "rmse": math.sqrt(sum(x * x for x in errs) / n) if n else nan,
+        "frac_off_2": sum(1 for x in errs if abs(x) > 2.0) / n if n else nan,
+        "values_without_site": total - n,
+        "frac_no_site": (total - n) / total if total else nan,
+        "frac_mol_extra_sites": extra_mols / molecules if molecules else nan,
         "per_class": {k: (len(v), sum(abs(x) for x in v) / len(v),
                           math.sqrt(sum(x * x for x in v) / len(v)))
                       for k, v in sorted(per_class.items())},
@@ -294,23 +446,68 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
 
 
 def folds(entries: list[Entry], k: int = 5, seed: int = 20240501) -> list[int]:
-    """Fold number per entry, split by molecule (deterministic)."""
-    order = sorted(range(len(entries)), key=lambda i: entries[i].smiles)
+    """Fold number per entry, grouped by scaffold (deterministic).
+
+    All entries of one scaffold group (:func:`scaffold_group`) share a fold, so a ring
+    framework is never in both the fitting and the scoring folds. Groups are dealt largest
+    first to the fold with the fewest values (ties: seeded shuffle), which keeps the folds
+    balanced although a few frameworks (benzene, pyridine) are large."""
+    size: dict[str, int] = {}
+    for e in entries:
+        size[e.scaffold] = size.get(e.scaffold, 0) + len(e.measured)
+    names = sorted(size)
     rng = random.Random(seed)
-    rng.shuffle(order)
-    out = [0] * len(entries)
-    for pos, i in enumerate(order):
-        out[i] = pos % k
-    return out
+    rng.shuffle(names)
+    names.sort(key=lambda n: -size[n])      # stable: shuffled order breaks ties
+    load = [0] * k
+    where: dict[str, int] = {}
+    for n in names:
+        f = min(range(k), key=lambda i: (load[i], i))
+        where[n] = f
+        load[f] += size[n]
+    return [where[e.scaffold] for e in entries]
 
 
-def cross_validate(entries: list[Entry], k: int = 5, prior=None, iterations: int = 12):
-    """5-fold CV by molecule: returns (metrics dict, per-fold parameter dicts)."""
+_CV_STATE: dict = {}
+
+
+def _fit_fold(f: int):
+    st = _CV_STATE
+    train = [e for e, ff in zip(st["entries"], st["fold"]) if ff != f]
+    p, _keys, _info = fit(train, prior=st["prior"], iterations=st["iterations"])
+    return p
+
+
+def cross_validate(entries: list[Entry], k: int = 5, prior=None, iterations: int = 12,
+                   workers: int = 1):
+    """k-fold CV grouped by scaffold: returns (metrics dict, per-fold parameter dicts).
+
+    Perception is done once per molecule (the entries carry it); each fold only redoes the
+    least squares. ``workers`` > 1 fits the folds in that many forked processes."""
     fold = folds(entries, k)
-    fold_params = []
-    for f in range(k):
-        train = [e for e, ff in zip(entries, fold) if ff != f]
-        p, _keys, _info = fit(train, prior=prior, iterations=iterations)
-        fold_params.append(p)
+    fold_params = cv_parameters(entries, fold, k, prior, iterations, workers)
     index = {id(e): ff for e, ff in zip(entries, fold)}
     return metrics(entries, lambda e: fold_params[index[id(e)]]), fold_params
+
+
+def cv_parameters(entries, fold, k=5, prior=None, iterations=12, workers=1) -> list[dict]:
+    """Parameters fitted without each fold (``result[f]`` never saw fold ``f``)."""
+    _CV_STATE.update(entries=entries, fold=fold, prior=prior, iterations=iterations)
+    try:
+        if workers > 1:
+            import multiprocessing as mp
+
+            with mp.get_context("fork").Pool(workers) as pool:
+                return pool.map(_fit_fold, range(k))
+        return [_fit_fold(f) for f in range(k)]
+    finally:
+        _CV_STATE.clear()
+
+
+def cv_residuals(entries: list[Entry], k: int = 5, prior=None, iterations: int = 12,
+                 workers: int = 1) -> tuple[list[SiteResidual], list[int], list[dict]]:
+    """Out-of-fold :func:`site_residuals` of every value (grouped CV), folds, fold params."""
+    fold = folds(entries, k)
+    fold_params = cv_parameters(entries, fold, k, prior, iterations, workers)
+    index = {id(e): ff for e, ff in zip(entries, fold)}
+    return site_residuals(entries, lambda e: fold_params[index[id(e)]]), fold, fold_params

@@ -276,7 +276,7 @@ def in_window(site: Site) -> bool:
     return site.pka >= BASE_MIN if site.kind == "base" else site.pka <= ACID_MAX
 
 
-def ionizable_sites(mol_or_smiles, measured=None) -> list[Site]:
+def ionizable_sites(mol_or_smiles, measured=None, analogues: bool = True) -> list[Site]:
     """Ionizable sites of a structure with estimated (or measured) pKa values.
 
     Parameters
@@ -289,6 +289,10 @@ def ionizable_sites(mol_or_smiles, measured=None) -> list[Site]:
         ``{group_id: pKa}``, ``{"acid" | "base": pKa}`` (most acidic / most basic site), a
         sequence of floats (each replaces the estimated site closest to it), or a sequence
         of ``(selector, pKa)`` pairs as returned by :func:`parse_measured`.
+    analogues : bool
+        Apply the measured-analogue step (:mod:`.analogues`: nearest measured sites,
+        correction, calibrated uncertainty, exact literature matches). ``False`` gives the
+        estimator alone (used to test the LFER rules themselves).
 
     Returns
     -------
@@ -313,6 +317,10 @@ def ionizable_sites(mol_or_smiles, measured=None) -> list[Site]:
 
     parent = _parent(mol_or_smiles)
     sites = estimate_all(parent.mol)
+    if analogues:
+        from .analogues import apply_analogues
+
+        sites = apply_analogues(parent.mol, sites, smiles=parent.smiles)
     if measured:
         sites = apply_measured(sites, measured)
     return [s for s in sites if in_window(s) or s.provenance == "measured"]

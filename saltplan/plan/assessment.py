@@ -209,6 +209,8 @@ class Candidate:
     ph_max_basis: str | None = None
     slurry_ph: float | None = None   # pH of the salt's own saturated solution (estimate)
     reason: str | None = None     # why excluded (infeasible), None when feasible
+    #: in-house precedence evidence (ledger), None without a ledger
+    precedence_basis: str | None = field(default=None, compare=False, hash=False)
 
     @property
     def limiting_transfer(self) -> Transfer | None:
@@ -223,7 +225,7 @@ class Candidate:
         return ranking_key(self.score, self.delta_pka, self.counterion, self.stoichiometry)
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        out = {
             "rank": self.rank,
             "counterion_rank": self.counterion_rank,
             "counterion": self.counterion,
@@ -251,6 +253,9 @@ class Candidate:
             "caveats": [c.to_dict() for c in self.caveats],
             "reason": self.reason,
         }
+        if self.precedence_basis is not None:   # only with a ledger: plans stay as before
+            out["precedence_basis"] = self.precedence_basis
+        return out
 
 
 def ranking_key(score: float, dpka: float, counterion: str, stoichiometry: str) -> tuple:

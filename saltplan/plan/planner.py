@@ -25,6 +25,7 @@ from ..errors import ParameterError
 if TYPE_CHECKING:
     from rdkit import Chem
 
+    from ..ledger.store import InhouseEvidence
     from ..library.counterions import Library
     from ..structure import Parent
     from .ranking import RankingConfig
@@ -180,7 +181,8 @@ def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = Non
                min_delta_pka: float = 2.0, melting_point_c: float | None = None,
                intrinsic_solubility_mg_ml: float | None = None,
                salt_solubility_mg_ml: float | None = None,
-               max_heavy_atoms: int = 150) -> Plan:
+               max_heavy_atoms: int = 150,
+               inhouse: InhouseEvidence | None = None) -> Plan:
     """Plan the salt forms of an API: ranked, explained counterion × stoichiometry candidates.
 
     Parameters
@@ -211,6 +213,12 @@ def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = Non
         (and labelled "assumed").
     max_heavy_atoms : int
         Refuse larger structures.
+    inhouse : InhouseEvidence, optional
+        In-house screen outcomes from a ledger
+        (:meth:`saltplan.ledger.Ledger.inhouse_evidence`): the precedence term of each
+        candidate is shrunk toward the in-house success rate on similar sites
+        (:mod:`saltplan.plan.inhouse`), and the candidate says so (``precedence_basis``).
+        None (the default): the published prior alone, exactly as without a ledger.
 
     Returns
     -------
@@ -261,7 +269,8 @@ def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = Non
                  zwitterion_allowance=float(cfg.data["zwitterion"]["allowance"]))
 
     ranked, excluded = _score_and_rank(raw, library, parent, features, sol, cfg,
-                                       dose_mg=dose_mg, route=route)
+                                       dose_mg=dose_mg, route=route, sites=sites,
+                                       inhouse=inhouse)
 
     verdict = _verdict(sites, relevant, ranked, excluded, library, features, min_delta_pka)
     inputs = {
@@ -279,6 +288,12 @@ def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = Non
         "salt_solubility_mg_ml": salt_solubility_mg_ml,
     }
     settings = _settings(cfg, min_delta_pka, dose_mg)
+    if inhouse is not None:
+        from .inhouse import PKA_WINDOW, PRIOR_STRENGTH, SOURCE
+
+        settings["inhouse_prior"] = {"ledger": getattr(inhouse, "source", None),
+                                     "prior_strength_screens": PRIOR_STRENGTH,
+                                     "pka_window": PKA_WINDOW, "source": SOURCE}
     digest = input_hash(json.dumps(inputs, sort_keys=True, ensure_ascii=False),
                         library.hash, cfg.hash)
     prov = provenance(library_hash=library.hash, weights_hash=cfg.hash,
@@ -290,7 +305,8 @@ def plan_salts(structure: str | Path | Chem.Mol | Parent, name: str | None = Non
         cautions=CAUTIONS, references=REFERENCES, provenance=prov)
 
 
-def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route):
+def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route,
+                    sites=(), inhouse=None):
     """pHmax, slurry pH, caveats and score of every candidate; (ranked, excluded)."""
     from .assessment import ranking_key
     from .caveats import candidate_caveats
@@ -319,11 +335,16 @@ def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route)
             s0_basis=sol.intrinsic.method, api_mw=parent.mw,
             api_base_pka=limiting.api_pka if ion.role == "acid" else None,
             settings=settings_caveats, ph_max=ph_max, ph_max_basis=basis)
+        evidence = _inhouse_for(inhouse, cand, limiting, sites)
         score, breakdown = score_candidate(
             cand, ion, dose_mg=dose_mg, triggered_flags=triggered,
             alternative=cand.counterion in with_1_1, cfg=cfg, ph_max=ph_max,
-            slurry_ph=fields["slurry_ph"])
+            slurry_ph=fields["slurry_ph"], inhouse=evidence[:2] if evidence else None)
         fields.update(caveats=cavs, score=score, breakdown=breakdown)
+        if evidence and evidence[0] > 0:
+            from .inhouse import describe
+
+            fields["precedence_basis"] = describe(*evidence)
         key = ranking_key(score, cand.delta_pka, cand.counterion, cand.stoichiometry)
         scored.append((_Keyed(cand.feasible, key), cand, fields))
     good, bad = rank_order(scored, key=lambda x: x[0])
@@ -333,6 +354,19 @@ def _score_and_rank(raw, library, parent, features, sol, cfg, *, dose_mg, route)
     excluded = [replace(c, rank=i, counterion_rank=ci_rank[c.counterion], **f)
                 for i, (_, c, f) in enumerate(bad, start=len(ranked) + 1)]
     return ranked, excluded
+
+
+def _inhouse_for(inhouse, cand, limiting, sites):
+    """(screens, crystalline, programmes) of the ledger for this candidate's limiting site."""
+    if inhouse is None or limiting is None:
+        return None
+    from .inhouse import PKA_WINDOW
+
+    site = next((s for s in sites if s.atom == limiting.api_atom
+                 and s.kind == limiting.api_kind), None)
+    if site is None:
+        return None
+    return inhouse.lookup(cand.counterion, site.group_id, float(site.pka), PKA_WINDOW)
 
 
 def _settings(cfg, min_delta_pka, dose_mg) -> dict[str, Any]:

@@ -246,12 +246,15 @@ def precedence_score(counterion_id: str, cfg: RankingConfig, role: str = "acid")
 def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
                     triggered_flags: Iterable[str] = (), alternative: bool = False,
                     cfg: RankingConfig | None = None, ph_max: float | None = None,
-                    slurry_ph: float | None = None) -> tuple[float, dict[str, float]]:
+                    slurry_ph: float | None = None,
+                    inhouse: tuple[int, int] | None = None) -> tuple[float, dict[str, float]]:
     """Score and signed breakdown (weight × term; penalties negative) of one candidate.
 
     ``alternative`` marks a non-1:1 stoichiometry of a counterion whose 1:1 salt is also
     feasible (a second-choice experiment). ``ph_max`` and ``slurry_ph`` default to the
-    candidate's own values.
+    candidate's own values. ``inhouse`` = (screens, crystalline) from a ledger for a
+    similar site: the precedence term is then shrunk toward that in-house success rate
+    (:func:`saltplan.plan.inhouse.blend`); None or no screens leaves it as published.
     """
     cfg = cfg or load_ranking_config()
     w = cfg.data["weights"]
@@ -288,8 +291,8 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
     breakdown = {
         "delta_pka_margin": w["delta_pka_margin"] * margin,
         "tier": w["tier"] * tier_term,
-        "precedence": w["precedence"] * precedence_score(candidate.counterion, cfg,
-                                                         getattr(ion, "role", "acid")),
+        "precedence": w["precedence"] * _precedence(candidate.counterion, cfg,
+                                                    getattr(ion, "role", "acid"), inhouse),
         "mass": -w["mass"] * mass,
         "liabilities": -w["liabilities"] * liab,
         "hygroscopicity": -w["hygroscopicity"] * hyg,
@@ -299,6 +302,16 @@ def score_candidate(candidate: Candidate, ion, *, dose_mg: float | None,
     }
     breakdown = {k: (0.0 if v == 0 else v) for k, v in breakdown.items()}  # no "-0.0"
     return sum(breakdown.values()), breakdown
+
+
+def _precedence(counterion_id: str, cfg: RankingConfig, role: str,
+                inhouse: tuple[int, int] | None) -> float:
+    published = precedence_score(counterion_id, cfg, role)
+    if not inhouse or inhouse[0] <= 0:
+        return published
+    from .inhouse import blend
+
+    return blend(published, int(inhouse[0]), int(inhouse[1]))
 
 
 def order(candidates: Iterable[Candidate]) -> list[Candidate]:

@@ -124,6 +124,10 @@ def candidate_views(cands: list[dict], where: str, sites: list[dict]) -> list[di
         parts = [{"key": k, "label": PART_LABELS.get(k, k.replace("_", " ")), "value": float(bd[k]),
                   "text": fmt(float(bd[k]), 3), "colour": charts.part_colour(keys.index(k))}
                  for k in keys if k in bd]
+        if c.get("precedence_basis"):            # only with a ledger's in-house evidence
+            for p in parts:
+                if p["key"] == "precedence":
+                    p["text"] += f" ({c['precedence_basis']})"
         positive_total = sum(p["value"] for p in parts if p["value"] > 0)
         caveats = sorted((c.get("caveats") or []),
                          key=lambda cv: (SEVERITY_ORDER.get(cv.get("severity"), 9),

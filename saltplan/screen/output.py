@@ -117,7 +117,7 @@ def write_screen(design, out_dir: str | Path) -> list[Path]:
 def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | None = None,
                      name: str | None = None, dose_mg: float | None = None, measured=None,
                      libraries=None, max_heavy_atoms: int = 150, solvent_library=None,
-                     **options):
+                     inhouse=None, **options):
     """Plan the salts of a structure, design the screen and (optionally) write it.
 
     Parameters
@@ -133,6 +133,9 @@ def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | N
         and used by both the plan and the design).
     solvent_library : path, optional
         Solvent library file replacing the built-in one.
+    inhouse : optional
+        In-house evidence of a ledger for the plan's ranking (see
+        :func:`saltplan.plan.plan_salts`); None: the published prior only.
     **options
         Passed to :func:`saltplan.screen.design_screen`.
 
@@ -146,7 +149,7 @@ def screen_structure(structure, api_budget_mg: float, *, out_dir: str | Path | N
 
     library = load_counterions(list(libraries) if libraries else None)
     plan = plan_salts(structure, name=name, dose_mg=dose_mg, measured=measured,
-                      libraries=library, max_heavy_atoms=max_heavy_atoms)
+                      libraries=library, max_heavy_atoms=max_heavy_atoms, inhouse=inhouse)
     design = design_screen(plan, api_budget_mg, library=library,
                            solvent_library=solvent_library, **options)
     written = write_screen(design, out_dir) if out_dir is not None else []

@@ -6,7 +6,7 @@ Every module of ``saltplan/`` is parsed with :mod:`ast` (nothing is imported), e
 functions and under ``if TYPE_CHECKING:`` alike. The layers, highest first (DEVELOPERS.md,
 "Package map")::
 
-    cli → demo → batch → reports → select → screen → plan → ionization, library
+    cli → web → demo → batch → reports → select → screen → plan → ionization, library
         → structure → ledger → private helpers (_io, _data, _provenance, _version, errors)
 
 (``ledger`` stores the JSON of plans, screens and results and imports no step of the
@@ -28,8 +28,9 @@ PACKAGE = Path(__file__).resolve().parent.parent / "saltplan"
 
 #: layer of each top-level folder / module of saltplan (higher may import lower)
 LAYERS = {
-    "__init__": 12,                      # the lazy public API (imports only _version)
-    "cli": 11,
+    "__init__": 13,                      # the lazy public API (imports only _version)
+    "cli": 12,
+    "web": 11,                           # the browser workbench (`saltplan serve`)
     "demo": 10,
     "batch": 9,
     "reports": 8,

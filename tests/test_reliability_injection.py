@@ -341,6 +341,10 @@ SAFE_USES = {
     # escapes in SVG text (and the bar's <title> uses html.escape in charts.py)
     ("plan_body.html.j2", "c.bar_svg"),
     ("plan_body.html.j2", "ch.svg"),
+    # the workbench places the report body rendered by saltplan.reports (autoescaped
+    # templates above) into its pages
+    ("plan_area.html.j2", "body"),
+    ("screen_area.html.j2", "body"),
 }
 
 

@@ -25,6 +25,7 @@ COMMANDS = {
     "batch": "saltplan.cli.batch:batch",
     "select": "saltplan.cli.select:select",
     "demo": "saltplan.cli.demo:demo",
+    "serve": "saltplan.cli.serve:serve",
     "ledger": "saltplan.cli.ledger:ledger",
 }
 

@@ -18,7 +18,7 @@ import math
 from pathlib import Path
 from typing import Any
 
-__all__ = ["render_plan_html", "render_plan_fragment", "render_plan_markdown",
+__all__ = ["render_plan_html", "render_plan_fragment", "render_plan_body", "render_plan_markdown",
            "render_plan_json", "render_plan_docx", "render_plan_pdf", "write_plan_report",
            "repr_html", "html_environment", "markdown_environment", "FORMATS", "footer_text"]
 
@@ -111,6 +111,13 @@ def render_plan_fragment(plan_dict: Any, screen_dict: Any = None) -> str:
     """The report as an embeddable HTML fragment (scoped ``<style>`` + ``<div>``)."""
     ctx = _context(plan_dict, screen_dict)
     return html_environment().get_template("plan_fragment.html.j2").render(**ctx)
+
+
+def render_plan_body(plan_dict: Any, screen_dict: Any = None) -> str:
+    """The report body alone (the ``partials/plan_body`` partial, no page or style), for
+    pages that supply their own stylesheet (the workbench)."""
+    ctx = _context(plan_dict, screen_dict)
+    return html_environment().get_template("partials/plan_body.html.j2").render(**ctx)
 
 
 def render_plan_markdown(plan_dict: Any, screen_dict: Any = None) -> str:

@@ -344,6 +344,7 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
                   progress: Callable[[int, int | None], None] | None = None,
                   evaluator: Callable[..., Any] | None = None,
                   keep_plan: bool = False, inhouse: Any = None,
+                  checkpoint: Any = None,
                   ) -> Generator[list[dict[str, Any]], None, None]:
     """Evaluate a table of candidates, yielding the output rows chunk by chunk.
 
@@ -352,6 +353,10 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
     in input order. Input problems that concern the whole file (missing file or column,
     empty file, not UTF-8) raise :class:`~saltplan.errors.InputFileError` before any row is
     yielded, except "header but no data rows", found when the file ends.
+
+    ``checkpoint`` (a :class:`saltplan.batch.checkpoint.Checkpoint`): chunks it holds are
+    read back instead of planned; every chunk planned is saved there once the consumer has
+    taken it (asked for the next one), so a stopped run resumes where it stopped.
     """
     _check_options(jobs, engine, chunk_size, top)
     spec: ColumnSpec = column_spec(smiles_column, id_column, name_column, dose_column, pka_columns)
@@ -360,19 +365,48 @@ def iter_evaluate(dataframe_or_path: str | Path | pd.DataFrame, *, smiles_column
     settings = Settings(evaluator=evaluator, libraries=tuple(str(p) for p in libraries)
                         if libraries else None, top=top, keep_plan=keep_plan, inhouse=inhouse)
     chunks = mark_duplicates(source.chunks(chunk_size))
+    # chunks in input order as the engine reads them: (index, row numbers, stored?)
+    order: deque[tuple[int, list[int], bool]] = deque()
+
+    def to_plan():
+        for index, chunk in enumerate(chunks):
+            stored = checkpoint is not None and checkpoint.has(index)
+            order.append((index, [rec.row for rec in chunk], stored))
+            if not stored:
+                yield chunk
+
     if engine == "dask":
-        results = _run_dask(chunks, settings, scheduler)
+        results = _run_dask(to_plan(), settings, scheduler)
     elif jobs > 1:
-        results = _run_pool(chunks, settings, jobs)
+        results = _run_pool(to_plan(), settings, jobs)
     else:
-        results = _run_local(chunks, settings)
+        results = _run_local(to_plan(), settings)
     done = 0
+
+    def stored_before_next():
+        while order and order[0][2]:
+            index, numbers, _ = order.popleft()
+            yield checkpoint.load(index, numbers)
+
     try:
         for rows in results:
+            for kept in stored_before_next():
+                done += len(kept)
+                if progress is not None:
+                    progress(done, source.estimated_rows)
+                yield kept
+            index = order.popleft()[0]
             done += len(rows)
             if progress is not None:
                 progress(done, source.estimated_rows)
             yield rows
+            if checkpoint is not None:   # the consumer has taken the rows: keep them
+                checkpoint.save(index, rows)
+        for kept in stored_before_next():
+            done += len(kept)
+            if progress is not None:
+                progress(done, source.estimated_rows)
+            yield kept
     finally:
         results.close()  # an abandoned run stops its workers now, not when collected
 
@@ -449,6 +483,19 @@ def rows_to_frame(rows: list[dict[str, Any]]) -> pd.DataFrame:
     return frame
 
 
+def _open_checkpoint(folder, source, options):
+    """The run's :class:`~saltplan.batch.checkpoint.Checkpoint`, or None without a folder."""
+    if folder is None:
+        return None
+    import inspect
+
+    from .checkpoint import Checkpoint, describe_run
+
+    defaults = {k: p.default for k, p in inspect.signature(iter_evaluate).parameters.items()
+                if p.default is not inspect.Parameter.empty}
+    return Checkpoint.open(folder, describe_run(source, {**defaults, **options}))
+
+
 @dataclass(frozen=True)
 class BatchRun:
     """What :func:`run_batch` did: counts and the files written."""
@@ -459,12 +506,15 @@ class BatchRun:
     by_verdict: dict[str, int] = field(default_factory=dict)
     outputs: tuple[str, ...] = ()
     recorded: int | None = None        # plans recorded in a ledger (None: no ledger)
+    resumed: int | None = None         # rows read back from a checkpoint (None: no checkpoint)
 
     def to_dict(self) -> dict[str, Any]:
         out = {"rows": self.rows, "failed": self.failed, "duplicates": self.duplicates,
                "by_verdict": dict(self.by_verdict), "outputs": list(self.outputs)}
         if self.recorded is not None:
             out["recorded"] = self.recorded
+        if self.resumed is not None:
+            out["resumed"] = self.resumed
         return out
 
 
@@ -479,6 +529,11 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     ``learn`` (default True with a ledger): rank with its in-house evidence; ``inhouse``
     (without ``ledger``): rank with that evidence
     (:meth:`saltplan.ledger.Ledger.inhouse_evidence`) but record nothing.
+    ``checkpoint`` (a folder): keep every finished chunk there, so that the same call after
+    an interruption goes on where it stopped and writes the same bytes as an uninterrupted
+    run; refused when the folder belongs to another input or other options; emptied (and
+    removed if this run made it) once the outputs are in place
+    (:mod:`saltplan.batch.checkpoint`).
     Other options as for :func:`evaluate_many`.
     Files are written to temporary names and renamed only when the run completes, so a
     failed run leaves no partial output.
@@ -517,10 +572,19 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
 
     ledger = options.pop("ledger", None)
     learn = options.pop("learn", True)
-    if ledger is not None:
-        options["keep_plan"] = True
-        if learn:
-            options["inhouse"] = ledger.inhouse_evidence()
+    try:
+        if ledger is not None:
+            options["keep_plan"] = True
+            if learn:
+                options["inhouse"] = ledger.inhouse_evidence()
+        checkpoint = _open_checkpoint(options.pop("checkpoint", None), dataframe_or_path,
+                                      options)
+        if checkpoint is not None:
+            options["checkpoint"] = checkpoint
+            checkpoint.note_temporary(writer.target.tmp)
+    except BaseException:
+        writer.abort()            # a refused start leaves no temporary behind
+        raise
     stream = iter_evaluate(dataframe_or_path, progress=progress, **options)
     done = 0
     recorded = 0
@@ -547,11 +611,19 @@ def run_batch(dataframe_or_path: str | Path | pd.DataFrame, out: str | Path, *,
     except BaseException as exc:
         stream.close()
         writer.abort()
+        if checkpoint is not None and not checkpoint.done:
+            checkpoint.finish()    # nothing kept: leave no empty checkpoint behind
         if isinstance(exc, Interrupted) and exc.done is None:
             total = estimated[0]
             exc.done = (f"{done:,} of about {total:,} rows" if total else f"{done:,} rows")
+            if checkpoint is not None:
+                exc.done += (f" ({checkpoint.kept_rows:,} kept in the checkpoint folder "
+                             f"{checkpoint.folder}: run the same command again to go on)")
         raise
+    if checkpoint is not None:
+        checkpoint.finish()
     res = builder.result()
     return BatchRun(rows=res.rows, failed=res.failed, duplicates=res.duplicates,
                     by_verdict=dict(res.by_verdict), outputs=outputs,
-                    recorded=recorded if ledger is not None else None)
+                    recorded=recorded if ledger is not None else None,
+                    resumed=checkpoint.resumed_rows if checkpoint is not None else None)

@@ -60,11 +60,15 @@ class _Progress:
               help="Extra counterion library file (repeatable).")
 @click.option("--top", type=click.IntRange(0, 50), default=3, show_default=True,
               help="Feasible counterions listed per row.")
+@click.option("--checkpoint", "checkpoint", type=click.Path(file_okay=False),
+              help="Folder keeping finished chunks: after an interruption the same command "
+                   "goes on where it stopped (same output bytes). Emptied when the run "
+                   "completes.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 @ledger_options
 @common_options
 def batch(file, out, summary, smiles_column, id_column, name_column, dose_column, pka_columns,
-          jobs, engine, scheduler, chunk_size, libraries, top, quiet, ledger_url, record,
+          jobs, engine, scheduler, chunk_size, libraries, top, checkpoint, quiet, ledger_url, record,
           no_learn, author, as_json):
     """Plan salts for every row of FILE (CSV with a SMILES column, or SDF).
 
@@ -79,6 +83,10 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
     With a ledger (--ledger, --record or $SALTPLAN_LEDGER) the rankings learn from its
     screens (--no-learn: not); --record stores every planned row's plan there, one
     transaction each, as the rows arrive.
+
+    With --checkpoint DIR every finished chunk is kept in DIR; if the run is stopped
+    (Ctrl-C, SIGTERM, even SIGKILL), the same command again reads those chunks back and
+    plans only the rest. A checkpoint made for another input or other options is refused.
     """
     from ..batch.run import run_batch
 
@@ -94,7 +102,8 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
                                dose_column=dose_column, pka_columns=pka_columns or None,
                                jobs=jobs, engine=engine, scheduler=scheduler,
                                chunk_size=chunk_size, libraries=list(libraries) or None,
-                               top=top, progress=progress, **extra)
+                               top=top, progress=progress, checkpoint=checkpoint,
+                               **extra)
             where = led.led.where if led.led is not None else None
     finally:
         if progress is not None:
@@ -107,6 +116,8 @@ def batch(file, out, summary, smiles_column, id_column, name_column, dose_column
     line = f"{result.rows} rows, {result.failed} failed (see column error)"
     if result.duplicates:
         line += f", {result.duplicates} repeated ids (see column duplicate_of)"
+    if result.resumed:
+        line += f", {result.resumed} read back from the checkpoint"
     if result.recorded is not None:
         line += f", {result.recorded} plans recorded in {where}"
     click.echo(line, err=True)

@@ -125,6 +125,34 @@ CLASSES = {
         "SIGTERM / SIGINT during screen, select, demo, batch: one line, nothing written",
     ("signals", "test_signal_while_outputs_are_renamed_waits_for_the_set"):
         "signal while outputs are renamed: the set completes, the line says so",
+    ("checkpoint", "test_interrupted_run_resumes_to_the_same_bytes"):
+        "batch --checkpoint: stopped run resumed (CSV, JSON, JSON Lines; other --jobs; all chunks "
+        "kept): same bytes, only missing rows planned, folder removed",
+    ("checkpoint", "test_resume_with_other_jobs_gives_the_same_bytes"):
+        "batch --checkpoint: stopped run resumed (CSV, JSON, JSON Lines; other --jobs; all chunks "
+        "kept): same bytes, only missing rows planned, folder removed",
+    ("checkpoint", "test_a_complete_checkpoint_plans_nothing"):
+        "batch --checkpoint: stopped run resumed (CSV, JSON, JSON Lines; other --jobs; all chunks "
+        "kept): same bytes, only missing rows planned, folder removed",
+    ("checkpoint", "test_a_run_that_fails_before_any_chunk_leaves_no_folder"):
+        "batch --checkpoint: a run failing at the start leaves no folder",
+    ("checkpoint", "test_a_checkpoint_of_another_run_is_refused"):
+        "batch --checkpoint of another run (input, chunk size, top, library changed): one line, "
+        "checkpoint untouched, no temporary",
+    ("checkpoint", "test_a_damaged_chunk_is_reported_not_trusted"):
+        "batch --checkpoint damaged (chunk edited, manifest not JSON / other format), folder of "
+        "other files, a file: refused",
+    ("checkpoint", "test_a_damaged_manifest_is_refused"):
+        "batch --checkpoint damaged (chunk edited, manifest not JSON / other format), folder of "
+        "other files, a file: refused",
+    ("checkpoint", "test_a_folder_of_other_files_or_a_file_is_refused"):
+        "batch --checkpoint damaged (chunk edited, manifest not JSON / other format), folder of "
+        "other files, a file: refused",
+    ("checkpoint", "test_cli_killed_mid_run_resumes_to_the_same_bytes"):
+        "batch --checkpoint --jobs 2 killed by SIGKILL / SIGTERM (real CLI), rerun: same bytes, "
+        "no orphan, no temporary left",
+    ("checkpoint", "test_resumed_run_records_every_plan_once_in_the_ledger"):
+        "batch --checkpoint --record: resumed run records each plan once (ledger as uninterrupted)",
     ("properties", "test_para_nitro_never_raises_acid_pka"):
         "chemical sanity: para-nitro on phenols / benzoic acids (pairs)",
     ("properties", "test_para_donor_never_lowers_aryl_base_pka"):

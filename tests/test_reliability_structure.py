@@ -119,13 +119,13 @@ def test_odd_but_valid_smiles_accepted(cli, case, cmd):
         assert parent.get("name", "ethylamine") == "ethylamine"
 
 
-def test_huge_smiles_refused_fast(cli):
+def test_huge_smiles_refused_fast(cli, hang_bound):
     # a bound, not a benchmark: before the early check these took 10 s and 2 min
     for smi in ("C" * 100_000, "c1ccccc1" * 12_000):
         start = time.perf_counter()
         result = cli("sites", smi)
         assert result.exit_code == 1
-        assert time.perf_counter() - start < 10
+        assert time.perf_counter() - start < hang_bound(10)
 
 
 def test_verbose_keeps_the_domain_error(cli):

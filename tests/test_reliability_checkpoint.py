@@ -235,11 +235,10 @@ def _env():
     return {**os.environ, "SOURCE_DATE_EPOCH": "1764668284"}
 
 
-@pytest.mark.slow
 @pytest.mark.skipif(os.name != "posix", reason="POSIX signals")
 @pytest.mark.parametrize("how", ["SIGKILL", "SIGTERM"])
 def test_cli_killed_mid_run_resumes_to_the_same_bytes(tmp_path, how):
-    src = _table(tmp_path / "in.csv", 600)
+    src = _table(tmp_path / "in.csv", 400)
     args = ["--summary", tmp_path / "s.html", "--jobs", 2, "--chunk-size", 10, "--quiet"]
     ref, ref_summary = tmp_path / "ref.csv", tmp_path / "ref.html"
     subprocess.run(_cli("batch", src, "--out", ref, "--summary", ref_summary, *args[2:]),
@@ -263,7 +262,7 @@ def test_cli_killed_mid_run_resumes_to_the_same_bytes(tmp_path, how):
         time.sleep(0.05)
     assert not out.exists() and not (tmp_path / "s.html").exists()
     kept = len(list(ck.glob("chunk-*.json")))
-    assert 3 <= kept < 60
+    assert 3 <= kept < 40
     done = subprocess.run(_cli("batch", src, "--out", out, "--checkpoint", ck, *args),
                           capture_output=True, text=True, env=_env(), timeout=600)
     assert done.returncode == 1, done.stderr        # exit 1: the input has bad rows

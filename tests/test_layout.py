@@ -20,6 +20,7 @@ only when a notebook displays a result.
 from __future__ import annotations
 
 import ast
+import re
 from pathlib import Path
 
 import pytest
@@ -330,3 +331,80 @@ def test_public_api_functions_are_fully_annotated():
         if gaps:
             missing[name] = gaps
     assert missing == {}
+
+
+# ------------------------------------------------------------------ the map in DEVELOPERS.md
+ROOT = PACKAGE.parent
+_PATH = re.compile(r"`((?:saltplan|counterions|tests|benchmarks|scripts|docs|reports|\.ci)/[^`\s]*)`")
+
+
+def named_paths(text: str) -> list[str]:
+    """Every `path` in backticks that starts at a top-level folder ("file.py:NAME" → file.py)."""
+    return sorted({m.group(1).split(":")[0] for m in _PATH.finditer(text)})
+
+
+#: named in the guide but made at build or run time, not in the source tree
+GENERATED = {"benchmarks/.cache/",          # per-fold fit cache of benchmarks/pka_accuracy.py
+             "saltplan/_counterions",       # counterions/ as packaged in the wheel
+             "reports/ledger.sqlite"}       # the demo's ledger (binary, not committed)
+
+
+def stale_paths(text: str, root: Path = ROOT) -> list[str]:
+    """Paths named in backticks that do not exist, and, in each Package map row of a folder,
+    module / folder names (`planner.py`, `templates/`) that are not in that folder."""
+    bad = [p for p in named_paths(text) if p not in GENERATED and not any(root.glob(p.rstrip("/")))]
+    section = text.split("## Package map", 1)[1].split("\n## ", 1)[0] if "## Package map" in text else ""
+    for row in re.finditer(r"^\|[^|]*\| `(saltplan/[^`]+/)` \| (.*)$", section, re.M):
+        folder, what = row.group(1), row.group(2)
+        for name in re.findall(r"`([A-Za-z_][\w./]*(?:\.py|\.yaml|\.md|\.sh|/))`", what):
+            if _PATH.fullmatch(f"`{name}`"):
+                continue                          # a full path, checked above
+            if not (root / folder / name.rstrip("/")).exists():
+                bad.append(folder + name)
+    return sorted(bad)
+
+
+def map_rows(text: str) -> set[str]:
+    """The first-column-or-second paths of the Package map table rows."""
+    section = text.split("## Package map", 1)[1].split("\n## ", 1)[0]
+    return {m.group(1) for m in re.finditer(r"^\|[^|]*\| `(saltplan/[^`]+)`", section, re.M)}
+
+
+def test_every_path_named_in_the_contributor_guide_exists():
+    text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
+    assert len(named_paths(text)) > 40            # the map names the modules, not just folders
+    assert stale_paths(text) == []
+
+
+def test_the_package_map_has_a_row_per_folder_in_layer_order():
+    text = (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8")
+    rows = map_rows(text)
+    folders = {f"saltplan/{p.name}/" for p in PACKAGE.iterdir()
+               if p.is_dir() and (p / "__init__.py").exists()}
+    assert folders <= rows, folders - rows
+    section = text.split("## Package map", 1)[1].split("\n## ", 1)[0]
+    listed = [(int(m.group(1)), m.group(2)) for m in
+              re.finditer(r"^\| (\d+) \| `saltplan/([^`/.]+)", section, re.M)]
+    for layer, name in listed:                    # the numbers are the test's own layers
+        assert LAYERS["_private" if name in PRIVATE_HELPERS else name] == layer, name
+    assert [n for n, _ in listed] == sorted((n for n, _ in listed), reverse=True)
+
+
+def test_map_checker_can_fail(tmp_path):
+    (tmp_path / "saltplan").mkdir()
+    (tmp_path / "saltplan" / "plan.py").write_text("", encoding="utf-8")
+    (tmp_path / "saltplan" / "screen").mkdir()
+    (tmp_path / "saltplan" / "screen" / "design.py").write_text("", encoding="utf-8")
+    text = ("see `saltplan/plan.py:plan_salts` and `saltplan/select_report.py`, `tests/*.py`\n"
+            "## Package map\n| 6 | `saltplan/screen/` | `design.py` (ok), `screen_output.py` |\n")
+    assert stale_paths(text, tmp_path) == ["saltplan/screen/screen_output.py",
+                                           "saltplan/select_report.py", "tests/*.py"]
+
+
+GUIDES = ["README.md", "counterions/README.md", "saltplan/ionization/README.md",
+          "saltplan/reports/README.md", "docs/reliability.md"]
+
+
+@pytest.mark.parametrize("guide", GUIDES)
+def test_every_path_named_in_the_other_guides_exists(guide):
+    assert stale_paths((ROOT / guide).read_text(encoding="utf-8")) == []

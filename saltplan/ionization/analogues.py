@@ -284,7 +284,7 @@ class ReferenceTable:
             return []
         part = np.argpartition(-sim, kk - 1)[:kk] if kk < hi - lo else np.arange(hi - lo)
         vals = sim[part].tolist()
-        pairs = sorted(zip(vals, part.tolist()), key=lambda t: (-t[0], t[1]))
+        pairs = sorted(zip(vals, part.tolist(), strict=True), key=lambda t: (-t[0], t[1]))
         return [(lo + i, v) for v, i in pairs if v >= 0.0]
 
     def analogue(self, index: int, similarity: float) -> Analogue:
@@ -347,7 +347,7 @@ class Fit:
         clipped at ``±clip``."""
         num = den = 0.0
         span = max(1.0 - self.min_similarity, 1e-9)
-        for s, r in zip(sims, residuals):
+        for s, r in zip(sims, residuals, strict=True):
             if s <= self.min_similarity:
                 continue
             w = ((min(s, 1.0) - self.min_similarity) / span) ** self.power
@@ -438,7 +438,7 @@ def apply_analogues(mol, sites: list[Site], table: ReferenceTable | None = None,
     fps = site_fingerprints(mol, [s.atom for s in sites], table.fingerprint)
     key: list[str] = []   # InChIKey, computed only when an identical environment is found
     out = []
-    for s, fp in zip(sites, fps):
+    for s, fp in zip(sites, fps, strict=True):
         if s.provenance != "estimated":
             out.append(s)
             continue

@@ -58,7 +58,7 @@ class Entry:
         if not self.splits:
             self.splits = ["dev"] * n
 
-    def subset(self, keep) -> "Entry | None":
+    def subset(self, keep) -> Entry | None:
         """The same molecule with only the values for which ``keep(i)`` is true (or None)."""
         idx = [i for i in range(len(self.measured)) if keep(i)]
         if not idx:
@@ -171,7 +171,7 @@ def load_calibration_sets(train_path=None, dev_path=None, train_range=TRAIN_RANG
 def predict(entry: Entry, params) -> list[tuple[float, str, str]]:
     """``(pka, kind, group_id)`` of the sites that would be returned (window applied)."""
     out = []
-    for rec, (pka, _steps) in zip(entry.perc.records, evaluate(entry.perc, params)):
+    for rec, (pka, _steps) in zip(entry.perc.records, evaluate(entry.perc, params), strict=True):
         kind = rec.group.kind
         if (kind == "base" and pka >= BASE_MIN) or (kind == "acid" and pka <= ACID_MAX):
             out.append((pka, kind, rec.group.id))
@@ -205,7 +205,7 @@ def assign(entry: Entry, params) -> list[tuple[float, int | None, float | None]]
     values = predict_all(entry, params)
     shown = _shown(entry, values)
     res = []
-    for v, kind in zip(entry.measured, entry.kinds):
+    for v, kind in zip(entry.measured, entry.kinds, strict=True):
         i = _closest(entry, values, shown, v, kind)
         res.append((v, None, None) if i is None else (v, i, values[i]))
     return res
@@ -243,7 +243,7 @@ def site_residuals(entries: list[Entry], params) -> list[SiteResidual]:
     out = []
     for e in entries:
         p = params(e) if callable(params) else params
-        for (v, i, est), kind, origin, split in zip(assign(e, p), e.kinds, e.origins, e.splits):
+        for (v, i, est), kind, origin, split in zip(assign(e, p), e.kinds, e.origins, e.splits, strict=True):
             rec = e.perc.records[i] if i is not None else None
             out.append(SiteResidual(e.smiles, rec.atom if rec else None,
                                     rec.group.id if rec else None, kind, v,
@@ -409,7 +409,7 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
 
     def params_of(theta):
         p = dict(prior)
-        for k, v in zip(keys, theta):
+        for k, v in zip(keys, theta, strict=True):
             p[k] = float(v)
         p["gamma"] = min(max(p["gamma"], 0.2), 0.8)
         p["c_ar"] = min(max(p["c_ar"], 0.2), 1.0)
@@ -421,7 +421,7 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
         # swap values when their order flips (and symmetry-equivalent sites on rounding):
         # score the closest site of the right kind, which is continuous in the parameters
         out = []
-        for (v, i, _), kind in zip(asg, e.kinds):
+        for (v, i, _), kind in zip(asg, e.kinds, strict=True):
             if i is None:
                 out.append(0.0)
                 continue
@@ -432,7 +432,7 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
     def residuals(theta, assignment):
         p = params_of(theta)
         r = []
-        for e, asg in zip(entries, assignment):
+        for e, asg in zip(entries, assignment, strict=True):
             r.extend(entry_res(e, asg, p))
         return np.array(r)
 
@@ -450,7 +450,7 @@ def fit(entries: list[Entry], prior: dict[str, float] | None = None, keys: list[
         w = np.where(np.abs(r) <= HUBER, 1.0, HUBER / np.maximum(np.abs(r), 1e-9))
         w = np.where(np.abs(r) > OUTLIER, 0.01, w)
         J = np.zeros((len(r), len(keys)))
-        for c, k in enumerate(keys):
+        for c in range(len(keys)):
             h = 1e-3 * scales[c]
             th = theta.copy()
             th[c] += h
@@ -516,7 +516,7 @@ _CV_STATE: dict = {}
 
 def _fit_fold(f: int):
     st = _CV_STATE
-    train = [e for e, ff in zip(st["entries"], st["fold"]) if ff != f]
+    train = [e for e, ff in zip(st["entries"], st["fold"], strict=True) if ff != f]
     p, _keys, _info = fit(train, prior=st["prior"], iterations=st["iterations"])
     return p
 
@@ -529,7 +529,7 @@ def cross_validate(entries: list[Entry], k: int = 5, prior=None, iterations: int
     least squares. ``workers`` > 1 fits the folds in that many forked processes."""
     fold = folds(entries, k)
     fold_params = cv_parameters(entries, fold, k, prior, iterations, workers)
-    index = {id(e): ff for e, ff in zip(entries, fold)}
+    index = {id(e): ff for e, ff in zip(entries, fold, strict=True)}
     return metrics(entries, lambda e: fold_params[index[id(e)]]), fold_params
 
 
@@ -552,5 +552,5 @@ def cv_residuals(entries: list[Entry], k: int = 5, prior=None, iterations: int =
     """Out-of-fold :func:`site_residuals` of every value (grouped CV), folds, fold params."""
     fold = folds(entries, k)
     fold_params = cv_parameters(entries, fold, k, prior, iterations, workers)
-    index = {id(e): ff for e, ff in zip(entries, fold)}
+    index = {id(e): ff for e, ff in zip(entries, fold, strict=True)}
     return site_residuals(entries, lambda e: fold_params[index[id(e)]]), fold, fold_params

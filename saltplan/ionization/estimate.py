@@ -146,7 +146,7 @@ def perceive(mol) -> Perception:
     pairs: dict[tuple[int, int], Pair] = {}
     if len(records) > 1:
         ranks = list(Chem.CanonicalRankAtoms(mol, breakTies=False))
-        for i, r in enumerate(records):
+        for r in records:
             r.sym = ranks[r.atom] * 1000 + _group_order()[r.group.id]
         max_cost = float(catalogue.interaction_table()["max_cost"])
         for i, ri in enumerate(records):
@@ -256,7 +256,7 @@ def estimate_all(mol) -> list[Site]:
     unc = catalogue.class_uncertainty()
     fitted = catalogue.fitted_source()
     sites = []
-    for rec, (pka, steps) in zip(perc.records, results):
+    for rec, (pka, steps) in zip(perc.records, results, strict=True):
         grp = rec.group
         u = math.sqrt(unc[grp.id] ** 2 + rec.extra_uncertainty ** 2)
         shift = sum(s.value for s in steps if s.source == INTERACTION_SOURCE)

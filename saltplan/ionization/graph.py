@@ -26,7 +26,7 @@ class MolGraph:
     last_pred: dict | None = None
 
     @classmethod
-    def from_mol(cls, mol) -> "MolGraph":
+    def from_mol(cls, mol) -> MolGraph:
         n = mol.GetNumAtoms()
         z, arom, hs, charge, degree = [], [], [], [], []
         for idx in range(n):

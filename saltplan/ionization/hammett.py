@@ -153,7 +153,7 @@ def hammett_terms(g: MolGraph, anchor: int, match: frozenset[int], family: str,
                 sigma = float(row.get(key, row.get("meta", 0.5)))
                 terms.append(HammettTerm(f"{pname} {row['name']}", sigma,
                                          f"sigma {sigma:+.2f}", RULE_SOURCE, 0.1))
-        for x, order, ar in g.nbrs[a]:
+        for x, _order, ar in g.nbrs[a]:
             if x in ring_set or x in skip_atoms:
                 continue
             if ar:
@@ -237,7 +237,7 @@ def _remote_terms(g: MolGraph, fring, ring_set, outside, match, table) -> list[H
     fset = set(fring)
     out: list[HammettTerm] = []
     for a in outside:
-        for x, order, ar in g.nbrs[a]:
+        for x, _order, ar in g.nbrs[a]:
             if x in fset or x in ring_set or x in match or ar:
                 continue
             key, fallback = describe(g, x, a)

@@ -94,7 +94,7 @@ def reference_rows(path: str | Path, params=None, fingerprint: dict | None = Non
                 values = ([s.pka for s in full] if shipped else
                           [v for v, _steps in evaluate(perceive(parent.mol), params)])
                 sites = []
-                for s, pka in zip(full, values):
+                for s, pka in zip(full, values, strict=True):
                     if (s.kind == "base" and pka >= -2.0) or (s.kind == "acid" and pka <= 16.0):
                         sites.append((s.atom, s.kind, s.group_id, float(pka), s.uncertainty))
                 with rdkit_messages():
@@ -124,7 +124,7 @@ def reference_rows(path: str | Path, params=None, fingerprint: dict | None = Non
         by_mol.setdefault(id(r["mol"]), []).append(r)
     for group in by_mol.values():
         fps = site_fingerprints(group[0]["mol"], [r["atom"] for r in group], fpd)
-        for r, fp in zip(group, fps):
+        for r, fp in zip(group, fps, strict=True):
             r["fp"] = fp
     return rows, skipped
 
@@ -161,8 +161,8 @@ def cv_neighbours(rows, fold: list[int], depth: int = 12, k: int = 5):
     S = np.full((n, depth), -1.0)
     R = np.zeros((n, depth))
     for f in sorted(set(fold)):
-        table = ReferenceTable.from_rows(usable([r for r, ff in zip(rows, fold) if ff != f]))
-        for i, (r, ff) in enumerate(zip(rows, fold)):
+        table = ReferenceTable.from_rows(usable([r for r, ff in zip(rows, fold, strict=True) if ff != f]))
+        for i, (r, ff) in enumerate(zip(rows, fold, strict=True)):
             if ff != f:
                 continue
             hits = table.search(r["group_id"], r["kind"], r["fp"], depth)

@@ -102,7 +102,7 @@ def _carbon(g: MolGraph, c: int, ring_atom: int) -> tuple[str, bool]:
         if g.z[d] == 7:
             return "CH=NR", False
         if g.z[d] == 6:
-            for j, order, ar in g.nbrs[d]:
+            for j, _order, _ar in g.nbrs[d]:
                 if j == c:
                     continue
                 if g.has_double_to(j, (8,)) or any(o == 3.0 for _, o, _ in g.nbrs[j]):
